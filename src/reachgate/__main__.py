@@ -1,0 +1,3 @@
+from reachgate.cli import main
+
+main()

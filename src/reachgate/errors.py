@@ -1,0 +1,10 @@
+"""The package's one error type: bad input that the CLI turns into exit code 2."""
+
+from __future__ import annotations
+
+
+class ReachgateError(Exception):
+    """Bad input or a bad request: one line that names the file, line or key, and the fault.
+
+    The CLI prints ``str(error)`` on stderr and exits with code 2, never a traceback.
+    """
