@@ -1,0 +1,133 @@
+"""Path IK: joint values for every sample of a TCP path, on the home configuration's branch.
+
+The closed-form solver serves arms with a spherical wrist (ik_closed); every other arm gets
+the numeric solver (ik_numeric). Revolute joints are made continuous along the path: each
+sample takes the value nearest the previous one (the first, nearest home), so a joint with
+more than 360° of range is never wrapped to ±180°. The rail and prismatic joints never wrap.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from enum import Enum
+
+import numpy as np
+
+from reachgate.ik_closed import ALL_BRANCHES, Branch, SphericalWristSolver, is_spherical_wrist
+from reachgate.ik_numeric import solve_path_numeric
+from reachgate.kinematics import cell_T_base, forward
+from reachgate.robot import Robot
+from reachgate.transforms import invert_transform, rotation_angle
+
+#: A solved sample whose FK misses the target by more than this is counted unreachable (m, rad).
+RESIDUAL_TOL_M = 1e-9
+RESIDUAL_TOL_RAD = 1e-9
+TWO_PI = 2.0 * np.pi
+
+
+class SolverKind(Enum):
+    CLOSED_FORM = "closed-form (spherical wrist)"
+    NUMERIC = "numeric (damped least squares)"
+
+
+def solver_kind(robot: Robot) -> SolverKind:
+    return SolverKind.CLOSED_FORM if is_spherical_wrist(robot.chain) else SolverKind.NUMERIC
+
+
+@dataclass(frozen=True)
+class PathSolution:
+    """Joint trajectory and what the solver learnt on the way.
+
+    q: (N, n_axes) axis values (rail first), SI.
+    reach_excess_m: (N,) distance of the target out of reach (0 where reachable).
+    position_error_m, orientation_error_rad: (N,) FK(q) residuals against the targets.
+    other_branch_fits: (N,) True where the kept branch leaves a joint range but another
+        branch of the closed-form solution stays inside every range.
+    measures: singularity measures by kind, each (N,): 'wrist', 'elbow' (rad),
+        'shoulder' (m) for closed-form arms.
+    """
+
+    q: np.ndarray
+    solver: SolverKind
+    branch: Branch | None
+    reach_excess_m: np.ndarray
+    position_error_m: np.ndarray
+    orientation_error_rad: np.ndarray
+    other_branch_fits: np.ndarray
+    measures: dict[str, np.ndarray] = field(default_factory=dict)
+
+
+def chain_targets(robot: Robot, cell_T_tool: np.ndarray, rail_m: np.ndarray | None) -> np.ndarray:
+    """Flange targets in the chain's base frame, (N, 4, 4) cell TCP poses -> (N, 4, 4)."""
+    cell_T_chain = cell_T_base(robot, rail_m) @ robot.chain.base_T_chain
+    return invert_transform(cell_T_chain) @ cell_T_tool @ invert_transform(robot.flange_T_tool)
+
+
+def continuous_angles(theta: np.ndarray, reference: np.ndarray) -> np.ndarray:
+    """Unwrap angles along time, starting at the value nearest the reference.
+
+    (N, k) angles, (k,) reference -> (N, k); each sample is within π of the previous one.
+    """
+    unwrapped = np.unwrap(theta, axis=0)
+    turns = np.round((reference - unwrapped[0]) / TWO_PI)
+    return unwrapped + TWO_PI * turns
+
+
+def _fits_range(theta: np.ndarray, lower: np.ndarray, upper: np.ndarray) -> np.ndarray:
+    """(M, 6) angles -> (M,) True where every angle, shifted by whole turns, fits its range."""
+    shifted = lower + np.mod(theta - lower, TWO_PI)  # smallest value >= lower
+    return (shifted <= upper).all(axis=1)
+
+
+def solve_path(robot: Robot, cell_T_tool: np.ndarray, rail_m: np.ndarray | None) -> PathSolution:
+    """Joint values for a TCP path (N, 4, 4) in the cell with given rail positions (N,)."""
+    targets = chain_targets(robot, cell_T_tool, rail_m)
+    chain = robot.chain
+    arm = slice(1, None) if robot.has_rail else slice(None)
+    home_arm = robot.home[arm]
+    lower, upper = robot.lower[arm], robot.upper[arm]
+    n_samples = targets.shape[0]
+
+    if is_spherical_wrist(chain):
+        solver = SphericalWristSolver(chain)
+        branch = solver.branch_of(home_arm + chain.theta_offset_rad)
+        sol = solver.solve(targets, branch)
+        q_arm = continuous_angles(sol.theta - chain.theta_offset_rad, home_arm)
+        reach = sol.reach_excess_m
+        measures = {"shoulder": sol.shoulder_m, "elbow": sol.elbow_rad, "wrist": sol.wrist_rad}
+        outside = ~((q_arm >= lower) & (q_arm <= upper)).all(axis=1) & (reach == 0)
+        other_fits = np.zeros(n_samples, dtype=bool)
+        if outside.any():
+            for other in ALL_BRANCHES:
+                if other == branch:
+                    continue
+                alt = solver.solve(targets[outside], other).theta - chain.theta_offset_rad
+                other_fits[outside] |= _fits_range(alt, lower, upper)
+        kind, kept = SolverKind.CLOSED_FORM, branch
+    else:
+        numeric = solve_path_numeric(chain, targets, home_arm)
+        q_arm = numeric.q_arm
+        reach = np.where(numeric.solved, 0.0, numeric.position_error_m)
+        measures = {}
+        other_fits = np.zeros(n_samples, dtype=bool)
+        kind, kept = SolverKind.NUMERIC, None
+
+    q = q_arm if rail_m is None else np.column_stack([rail_m, q_arm])
+    achieved = forward(robot, q)
+    position_error = np.linalg.norm(achieved[:, :3, 3] - cell_T_tool[:, :3, 3], axis=1)
+    orientation_error = rotation_angle(
+        np.swapaxes(achieved[:, :3, :3], 1, 2) @ cell_T_tool[:, :3, :3]
+    )
+    missed = (position_error > RESIDUAL_TOL_M) | (orientation_error > RESIDUAL_TOL_RAD)
+    # An unsolved sample with no geometric excess still counts as out of reach, by its miss.
+    reach = np.where(missed & (reach == 0), np.maximum(position_error, 1e-12), reach)
+    return PathSolution(
+        q=q,
+        solver=kind,
+        branch=kept,
+        reach_excess_m=reach,
+        position_error_m=position_error,
+        orientation_error_rad=orientation_error,
+        other_branch_fits=other_fits,
+        measures=measures,
+    )

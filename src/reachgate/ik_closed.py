@@ -1,0 +1,186 @@
+"""Closed-form IK for arms with a spherical wrist (Pieper's case), over whole arrays.
+
+Applies to six revolute joints in canonical standard DH form (robot.Chain) with
+- joint 1 perpendicular to joint 2 (|sin α1| = 1), joints 2 and 3 parallel (sin α2 = 0),
+- wrist axes 4, 5, 6 meeting in one point: a4 = a5 = d5 = 0 and |sin α4| = |sin α5| = 1.
+The wrist centre then fixes joints 1-3 (a shoulder offset a1, lateral offsets d2, d3 and a
+forearm offset a3 are all allowed) and the wrist rotation fixes joints 4-6.
+
+Branches are three signs: shoulder (which side of axis 1 the arm reaches over), elbow (sign
+of the elbow bend) and wrist (sign of sin θ5). Every function works on (N, ...) arrays.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from itertools import product
+
+import numpy as np
+
+from reachgate.kinematics import dh_transforms
+from reachgate.robot import Chain
+
+#: DH parameters closer than this to the special values count as equal (m or rad).
+GEOMETRY_TOL = 1e-9
+
+
+@dataclass(frozen=True)
+class Branch:
+    """Configuration branch: each sign is +1 or -1."""
+
+    shoulder: int
+    elbow: int
+    wrist: int
+
+    def describe(self) -> str:
+        names = {
+            "shoulder": ("front", "back"),
+            "elbow": ("up", "down"),
+            "wrist": ("unflipped", "flipped"),
+        }
+        return ", ".join(f"{key} {names[key][0 if getattr(self, key) > 0 else 1]}" for key in names)
+
+
+ALL_BRANCHES = tuple(Branch(s, e, w) for s, e, w in product((1, -1), repeat=3))
+
+
+@dataclass(frozen=True)
+class WristSolution:
+    """Closed-form solutions on one branch for N targets.
+
+    theta: (N, 6) DH joint angles θ (not yet minus offsets), in (-π, π].
+    reach_excess_m: (N,) how far the wrist centre lies outside the reachable shell (0 inside).
+    shoulder_m: (N,) distance of the wrist centre from the shoulder singular surface.
+    elbow_rad: (N,) elbow angle from stretched or folded (0 = singular).
+    wrist_rad: (N,) wrist bend from straight (0 = axes 4 and 6 aligned, singular).
+    """
+
+    theta: np.ndarray
+    reach_excess_m: np.ndarray
+    shoulder_m: np.ndarray
+    elbow_rad: np.ndarray
+    wrist_rad: np.ndarray
+
+
+def _close(value: float, target: float) -> bool:
+    return abs(value - target) < GEOMETRY_TOL
+
+
+def is_spherical_wrist(chain: Chain) -> bool:
+    """True when the chain has the structure this module solves in closed form."""
+    if chain.n != 6 or not chain.revolute.all():
+        return False
+    a, alpha, d = chain.a_m, chain.alpha_rad, chain.d_m
+    return (
+        _close(abs(np.sin(alpha[0])), 1.0)
+        and _close(np.sin(alpha[1]), 0.0)
+        and _close(a[3], 0.0)
+        and _close(a[4], 0.0)
+        and _close(d[4], 0.0)
+        and _close(abs(np.sin(alpha[3])), 1.0)
+        and _close(abs(np.sin(alpha[4])), 1.0)
+        and not _close(a[1], 0.0)
+    )
+
+
+class SphericalWristSolver:
+    """Closed-form solver for one chain; see the module docstring for the geometry."""
+
+    def __init__(self, chain: Chain) -> None:
+        if not is_spherical_wrist(chain):
+            raise ValueError("chain is not of the spherical-wrist form")
+        a, alpha, d = chain.a_m, chain.alpha_rad, chain.d_m
+        self.chain = chain
+        self.s1 = float(np.sign(np.sin(alpha[0])))
+        self.eps = float(np.sign(np.cos(alpha[1])))
+        self.s4 = float(np.sign(np.sin(alpha[3])))
+        self.s5 = float(np.sign(np.sin(alpha[4])))
+        b3 = -np.sin(alpha[2]) * d[3]
+        c3 = d[2] + np.cos(alpha[2]) * d[3]
+        self.a1, self.d1, self.a2 = float(a[0]), float(d[0]), float(a[1])
+        self.lateral_m = float(d[1] + self.eps * c3)  # h: offset across the arm plane
+        self.forearm_m = float(np.hypot(a[2], b3))  # L2
+        self.forearm_angle = float(np.arctan2(self.eps * b3, a[2]))  # ψ
+        # flange -> wrist centre, expressed in the flange frame (a6, sin α6·d6, cos α6·d6)
+        self.flange_to_centre = np.array([a[5], np.sin(alpha[5]) * d[5], np.cos(alpha[5]) * d[5]])
+        ca6, sa6 = np.cos(alpha[5]), np.sin(alpha[5])
+        self.rx_alpha6_T = np.array([[1, 0, 0], [0, ca6, sa6], [0, -sa6, ca6]])
+        self.inner_radius_m = abs(self.a2 - self.forearm_m)
+        self.outer_radius_m = self.a2 + self.forearm_m
+
+    # -- geometry of a configuration ------------------------------------------------------
+
+    def branch_of(self, theta: np.ndarray) -> Branch:
+        """The branch of one configuration of DH angles θ (6,)."""
+        t = np.asarray(theta, dtype=float)
+        frames = self._first_three(t[None, :3])
+        wc = self._centre_from_frames(frames)[0]
+        along = np.cos(t[0]) * wc[0] + np.sin(t[0]) * wc[1]
+        gamma = self.eps * t[2] + self.forearm_angle
+        return Branch(
+            shoulder=1 if along >= 0 else -1,
+            elbow=1 if np.sin(gamma) >= 0 else -1,
+            wrist=1 if np.sin(t[4]) >= 0 else -1,
+        )
+
+    def _first_three(self, theta123: np.ndarray) -> np.ndarray:
+        zero_offsets = Chain(
+            self.chain.a_m[:3],
+            self.chain.alpha_rad[:3],
+            self.chain.d_m[:3],
+            np.zeros(3),
+            np.ones(3, dtype=bool),
+            np.eye(4),
+        )
+        A = dh_transforms(zero_offsets, theta123)
+        return A[:, 0] @ A[:, 1] @ A[:, 2]
+
+    def _centre_from_frames(self, T03: np.ndarray) -> np.ndarray:
+        return T03[:, :3, 3] + self.chain.d_m[3] * T03[:, :3, 2]
+
+    # -- solving ----------------------------------------------------------------------------
+
+    def solve(self, chain_T_flange: np.ndarray, branch: Branch) -> WristSolution:
+        """Solve (N, 4, 4) flange poses (in the chain's base frame) on one branch."""
+        R06 = chain_T_flange[:, :3, :3]
+        centre = chain_T_flange[:, :3, 3] - np.einsum("nij,j->ni", R06, self.flange_to_centre)
+        wx, wy, wz = centre[:, 0], centre[:, 1], centre[:, 2]
+        h = self.lateral_m
+
+        # joint 1: the horizontal reach A = ±sqrt(ρ² - h²) along the arm plane
+        planar_sq = wx * wx + wy * wy - h * h
+        inside_cylinder_m = np.where(planar_sq < 0, abs(h) - np.sqrt(wx * wx + wy * wy), 0.0)
+        along = branch.shoulder * np.sqrt(np.clip(planar_sq, 0.0, None))
+        theta1 = np.arctan2(wy, wx) - np.arctan2(-self.s1 * h, along)
+
+        # joints 2, 3: a two-link problem in the arm plane
+        x1 = along - self.a1
+        y1 = self.s1 * (wz - self.d1)
+        r = np.hypot(x1, y1)
+        L1, L2 = self.a2, self.forearm_m
+        cos_gamma = (r * r - L1 * L1 - L2 * L2) / (2 * L1 * L2)
+        shell_excess_m = np.maximum(r - self.outer_radius_m, self.inner_radius_m - r)
+        gamma_abs = np.arccos(np.clip(cos_gamma, -1.0, 1.0))
+        gamma = branch.elbow * gamma_abs
+        theta2 = np.arctan2(y1, x1) - np.arctan2(L2 * np.sin(gamma), L1 + L2 * np.cos(gamma))
+        theta3 = self.eps * (gamma - self.forearm_angle)
+
+        # joints 4, 5, 6 from the wrist rotation R' = R03ᵀ R06 Rx(α6)ᵀ
+        T03 = self._first_three(np.stack([theta1, theta2, theta3], axis=1))
+        Rp = np.swapaxes(T03[:, :3, :3], 1, 2) @ R06 @ self.rx_alpha6_T
+        w, s4, s5 = branch.wrist, self.s4, self.s5
+        sin5 = w * np.hypot(Rp[:, 0, 2], Rp[:, 1, 2])
+        cos5 = -s4 * s5 * Rp[:, 2, 2]
+        theta5 = np.arctan2(sin5, cos5)
+        theta4 = np.arctan2(w * s5 * Rp[:, 1, 2], w * s5 * Rp[:, 0, 2])
+        theta6 = np.arctan2(-w * s4 * Rp[:, 2, 1], w * s4 * Rp[:, 2, 0])
+
+        theta = np.stack([theta1, theta2, theta3, theta4, theta5, theta6], axis=1)
+        theta = np.angle(np.exp(1j * theta))  # into (-π, π]
+        return WristSolution(
+            theta=theta,
+            reach_excess_m=np.maximum(np.maximum(shell_excess_m, inside_cylinder_m), 0.0),
+            shoulder_m=np.sqrt(np.clip(planar_sq, 0.0, None)),
+            elbow_rad=np.minimum(gamma_abs, np.pi - gamma_abs),
+            wrist_rad=np.arctan2(np.abs(sin5), np.abs(cos5)),
+        )

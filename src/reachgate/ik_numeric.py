@@ -1,0 +1,139 @@
+"""Numeric path IK for any arm, vectorised across samples.
+
+Damped least squares with the error-dependent damping of Sugihara (2011, "Solvability-
+unconcerned inverse kinematics by the Levenberg–Marquardt method"): Δq = (JᵀJ + λI)⁻¹Jᵀe with
+λ = ½|e|² + λ_min. The path is solved coarse to fine: a sparse subset of samples in sequence
+(each warm-started from the one before, the first from home), then each finer level at once
+from seeds interpolated between solved neighbours. Continuity from home keeps the branch.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from reachgate.kinematics import chain_pose_jacobian
+from reachgate.robot import Chain
+from reachgate.transforms import rotation_log
+
+#: A sample counts as solved when its position error is below this (m) ...
+POSITION_TOL_M = 1e-11
+#: ... and its orientation error below this (rad).
+ORIENTATION_TOL_RAD = 1e-11
+#: Floor of the damping λ; keeps the step finite at exact singularities.
+DAMPING_MIN = 1e-12
+#: Iteration budget per sample in the sequential pass and per batch level.
+MAX_ITERATIONS_SEQUENTIAL = 200
+MAX_ITERATIONS_BATCH = 30
+#: Samples between two solves of the sequential (coarsest) pass.
+COARSE_STRIDE = 64
+
+
+@dataclass(frozen=True)
+class NumericSolution:
+    """q_arm: (N, n) joint values; position_error_m, orientation_error_rad: (N,) residuals."""
+
+    q_arm: np.ndarray
+    position_error_m: np.ndarray
+    orientation_error_rad: np.ndarray
+
+    @property
+    def solved(self) -> np.ndarray:
+        return (self.position_error_m < 1e-9) & (self.orientation_error_rad < 1e-9)
+
+
+def _pose_error(chain_T_target: np.ndarray, T: np.ndarray) -> np.ndarray:
+    """(N, 6) error [Δp; rotation vector of R_target Rᵀ] in the chain frame."""
+    dp = chain_T_target[:, :3, 3] - T[:, :3, 3]
+    dr = rotation_log(chain_T_target[:, :3, :3] @ np.swapaxes(T[:, :3, :3], 1, 2))
+    return np.concatenate([dp, dr], axis=1)
+
+
+def _converged(error: np.ndarray) -> np.ndarray:
+    return (np.linalg.norm(error[:, :3], axis=1) < POSITION_TOL_M) & (
+        np.linalg.norm(error[:, 3:], axis=1) < ORIENTATION_TOL_RAD
+    )
+
+
+def refine(
+    chain: Chain, chain_T_target: np.ndarray, q_seed: np.ndarray, max_iterations: int
+) -> tuple[np.ndarray, np.ndarray]:
+    """Damped least-squares iterations on all samples at once.
+
+    (N, 4, 4) targets, (N, n) seeds -> ((N, n) solutions, (N, 6) final errors). Samples that
+    have converged are frozen; the loop ends when all have, or after max_iterations.
+    """
+    q = np.array(q_seed, dtype=float)
+    active = np.arange(q.shape[0])
+    error = np.zeros((q.shape[0], 6))
+    eye = np.eye(chain.n)
+    for _ in range(max_iterations):
+        T, J = chain_pose_jacobian(chain, q[active])
+        e = _pose_error(chain_T_target[active], T)
+        error[active] = e
+        done = _converged(e)
+        if done.all():
+            return q, error
+        keep = ~done
+        active, e, J = active[keep], e[keep], J[keep]
+        damping = 0.5 * np.einsum("ni,ni->n", e, e) + DAMPING_MIN
+        JtJ = np.swapaxes(J, 1, 2) @ J + damping[:, None, None] * eye
+        step = np.linalg.solve(JtJ, np.einsum("nji,nj->ni", J, e)[..., None])[..., 0]
+        q[active] += step
+    T, _ = chain_pose_jacobian(chain, q[active])
+    error[active] = _pose_error(chain_T_target[active], T)
+    return q, error
+
+
+def solve_path_numeric(
+    chain: Chain, chain_T_target: np.ndarray, q_home: np.ndarray
+) -> NumericSolution:
+    """Solve a whole path, coarse to fine, starting on the home configuration's branch.
+
+    chain_T_target: (N, 4, 4) flange targets in the chain frame; q_home: (n,) -> NumericSolution.
+    """
+    n_samples = chain_T_target.shape[0]
+    q = np.empty((n_samples, chain.n))
+    error = np.empty((n_samples, 6))
+    solved = np.zeros(n_samples, dtype=bool)
+
+    coarse = np.unique(np.append(np.arange(0, n_samples, COARSE_STRIDE), n_samples - 1))
+    previous = np.asarray(q_home, dtype=float)
+    for index in coarse:
+        qi, ei = refine(
+            chain, chain_T_target[index : index + 1], previous[None], MAX_ITERATIONS_SEQUENTIAL
+        )
+        q[index], error[index] = qi[0], ei[0]
+        solved[index] = True
+        previous = qi[0]
+
+    stride = COARSE_STRIDE
+    while stride > 1:
+        stride //= 2
+        todo = np.flatnonzero(~solved & (np.arange(n_samples) % stride == 0))
+        if todo.size:
+            known = np.flatnonzero(solved)
+            right = np.searchsorted(known, todo)
+            left_i, right_i = known[right - 1], known[np.minimum(right, known.size - 1)]
+            span = np.maximum(right_i - left_i, 1)
+            weight = ((todo - left_i) / span)[:, None]
+            seed = (1 - weight) * q[left_i] + weight * q[right_i]
+            q[todo], error[todo] = refine(chain, chain_T_target[todo], seed, MAX_ITERATIONS_BATCH)
+            solved[todo] = True
+            # Samples the batch could not finish get a sequential retry from their left neighbour.
+            stuck = ~_converged(error[todo])
+            for index, left in zip(todo[stuck], left_i[stuck], strict=True):
+                qi, ei = refine(
+                    chain,
+                    chain_T_target[index : index + 1],
+                    q[left : left + 1],
+                    MAX_ITERATIONS_SEQUENTIAL,
+                )
+                if np.linalg.norm(ei) < np.linalg.norm(error[index]):
+                    q[index], error[index] = qi[0], ei[0]
+    return NumericSolution(
+        q_arm=q,
+        position_error_m=np.linalg.norm(error[:, :3], axis=1),
+        orientation_error_rad=np.linalg.norm(error[:, 3:], axis=1),
+    )

@@ -1,0 +1,139 @@
+"""Forward kinematics, geometric Jacobian and manipulability over whole arrays.
+
+Configurations are arrays ``q`` of shape (N, n_axes) in the robot's axis order (rail first,
+then the arm joints), SI units. Loops run over the joints (a handful), never over samples.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from reachgate.robot import Chain, Robot
+
+
+def dh_transforms(chain: Chain, q_arm: np.ndarray) -> np.ndarray:
+    """Link transforms A_i for every sample, (N, n) arm values -> (N, n, 4, 4).
+
+    A_i = Rz(theta_i) Tz(d_i) Tx(a_i) Rx(alpha_i) (standard form, see robot.Chain).
+    """
+    q_arm = np.asarray(q_arm, dtype=float)
+    theta = np.where(chain.revolute, q_arm + chain.theta_offset_rad, chain.theta_offset_rad)
+    d = np.where(chain.revolute, chain.d_m, q_arm + chain.d_m)
+    ct, st = np.cos(theta), np.sin(theta)
+    ca, sa = np.cos(chain.alpha_rad), np.sin(chain.alpha_rad)
+    A = np.zeros((*q_arm.shape, 4, 4))
+    A[..., 0, 0] = ct
+    A[..., 0, 1] = -st * ca
+    A[..., 0, 2] = st * sa
+    A[..., 0, 3] = chain.a_m * ct
+    A[..., 1, 0] = st
+    A[..., 1, 1] = ct * ca
+    A[..., 1, 2] = -ct * sa
+    A[..., 1, 3] = chain.a_m * st
+    A[..., 2, 1] = sa
+    A[..., 2, 2] = ca
+    A[..., 2, 3] = d
+    A[..., 3, 3] = 1.0
+    return A
+
+
+def cell_T_base(robot: Robot, rail_m: np.ndarray | None) -> np.ndarray:
+    """Arm base poses in the cell, (N,) rail positions (or None) -> (N, 4, 4) (or (4, 4))."""
+    if robot.rail is None or rail_m is None:
+        return robot.cell_T_rail @ robot.carriage_T_base
+    rail_m = np.asarray(rail_m, dtype=float)
+    rail_T_carriage = np.broadcast_to(np.eye(4), (*rail_m.shape, 4, 4)).copy()
+    rail_T_carriage[..., 0, 3] = rail_m
+    return robot.cell_T_rail @ rail_T_carriage @ robot.carriage_T_base
+
+
+def split_axes(robot: Robot, q: np.ndarray) -> tuple[np.ndarray | None, np.ndarray]:
+    """Split (N, n_axes) into rail positions (N,) (None without rail) and arm values (N, n)."""
+    q = np.asarray(q, dtype=float)
+    if robot.has_rail:
+        return q[..., 0], q[..., 1:]
+    return None, q
+
+
+def chain_frames(robot: Robot, q: np.ndarray) -> np.ndarray:
+    """Cell poses of the frames before each arm joint and of the TCP.
+
+    (N, n_axes) -> (N, n + 1, 4, 4): entry i (< n) is the frame whose z axis is joint i+1's
+    axis; entry n is cell_T_tool.
+    """
+    rail_m, q_arm = split_axes(robot, q)
+    chain = robot.chain
+    n_samples = q_arm.shape[0]
+    A = dh_transforms(chain, q_arm)
+    frames = np.empty((n_samples, chain.n + 1, 4, 4))
+    current = np.broadcast_to(cell_T_base(robot, rail_m) @ chain.base_T_chain, (n_samples, 4, 4))
+    for i in range(chain.n):
+        frames[:, i] = current
+        current = current @ A[:, i]
+    frames[:, chain.n] = current @ robot.flange_T_tool
+    return frames
+
+
+def forward(robot: Robot, q: np.ndarray) -> np.ndarray:
+    """TCP poses in the cell, (N, n_axes) -> (N, 4, 4) cell_T_tool."""
+    rail_m, q_arm = split_axes(robot, q)
+    A = dh_transforms(robot.chain, q_arm)
+    T = np.broadcast_to(
+        cell_T_base(robot, rail_m) @ robot.chain.base_T_chain, (q_arm.shape[0], 4, 4)
+    )
+    for i in range(robot.chain.n):
+        T = T @ A[:, i]
+    return T @ robot.flange_T_tool
+
+
+def jacobian(robot: Robot, q: np.ndarray) -> np.ndarray:
+    """Geometric Jacobian at the TCP in the cell frame, (N, n_axes) -> (N, 6, n_axes).
+
+    Rows are [v_x, v_y, v_z, ω_x, ω_y, ω_z] (m/s and rad/s per unit axis rate); the rail
+    column (if any) is the rail's +x direction in the cell.
+    """
+    frames = chain_frames(robot, q)
+    z = frames[:, :-1, :3, 2]  # (N, n, 3)
+    origins = frames[:, :-1, :3, 3]
+    p_tool = frames[:, -1, :3, 3][:, None, :]
+    revolute = robot.chain.revolute[None, :, None]
+    linear = np.where(revolute, np.cross(z, p_tool - origins), z)
+    angular = np.where(revolute, z, 0.0)
+    J_arm = np.concatenate([linear, angular], axis=2).transpose(0, 2, 1)  # (N, 6, n)
+    if not robot.has_rail:
+        return J_arm
+    rail_x = np.broadcast_to(robot.cell_T_rail[:3, 0], (J_arm.shape[0], 3))
+    rail_column = np.concatenate([rail_x, np.zeros_like(rail_x)], axis=1)[:, :, None]
+    return np.concatenate([rail_column, J_arm], axis=2)
+
+
+def chain_pose_jacobian(chain: Chain, q_arm: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Flange poses and geometric Jacobians in the chain's own base frame.
+
+    (N, n) arm values -> ((N, 4, 4) chain_T_flange, (N, 6, n) Jacobian at the flange origin).
+    """
+    A = dh_transforms(chain, q_arm)
+    n_samples = A.shape[0]
+    T = np.broadcast_to(np.eye(4), (n_samples, 4, 4))
+    z = np.empty((n_samples, chain.n, 3))
+    origins = np.empty((n_samples, chain.n, 3))
+    for i in range(chain.n):
+        z[:, i] = T[:, :3, 2]
+        origins[:, i] = T[:, :3, 3]
+        T = T @ A[:, i]
+    revolute = chain.revolute[None, :, None]
+    linear = np.where(revolute, np.cross(z, T[:, None, :3, 3] - origins), z)
+    angular = np.where(revolute, z, 0.0)
+    return T, np.concatenate([linear, angular], axis=2).transpose(0, 2, 1)
+
+
+def manipulability(J: np.ndarray) -> np.ndarray:
+    """Yoshikawa's measure w = sqrt(det(J Jᵀ)), (N, 6, n) -> (N,); 0 at a singularity."""
+    JJt = J @ np.swapaxes(J, -1, -2)
+    return np.sqrt(np.clip(np.linalg.det(JJt), 0.0, None))
+
+
+def arm_manipulability(robot: Robot, q: np.ndarray) -> np.ndarray:
+    """Yoshikawa's measure of the arm alone (rail column left out), (N, n_axes) -> (N,)."""
+    J = jacobian(robot, q)
+    return manipulability(J[:, :, 1:] if robot.has_rail else J)

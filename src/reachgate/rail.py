@@ -1,0 +1,106 @@
+"""How the rail shares the motion: held fixed, or following the slow part of the path.
+
+``follow`` is what a rig controller does: the carriage tracks the TCP's motion along the rail
+axis through a causal low-pass filter, so the rail takes the low frequencies and the arm the
+rest. The filter is a critically damped second-order low-pass (two equal first-order stages)
+discretised exactly on the real, possibly uneven, time steps.
+"""
+
+from __future__ import annotations
+
+import math
+from enum import Enum
+
+import numpy as np
+
+from reachgate.errors import ReachgateError
+from reachgate.kinematics import forward
+from reachgate.robot import Robot
+
+#: Default follow bandwidth, Hz (ours: slow enough for a heavy carriage, documented in README).
+DEFAULT_BANDWIDTH_HZ = 0.5
+#: Two equal first-order stages reach -3 dB at f_c·sqrt(sqrt(2) - 1); each stage's corner is
+#: raised by this factor so that the pair has its -3 dB point at the requested bandwidth.
+_STAGE_FACTOR = 1.0 / math.sqrt(math.sqrt(2.0) - 1.0)
+#: Length of one block of the filter's closed-form scan, in stage time constants; keeps
+#: exp(t/τ) far from overflow.
+_BLOCK_TIME_CONSTANTS = 30.0
+
+
+class RailPolicy(Enum):
+    FIXED = "fixed"
+    FOLLOW = "follow"
+
+
+def first_order_lowpass(t_s: np.ndarray, u: np.ndarray, tau_s: float) -> np.ndarray:
+    """Causal first-order low-pass y' = (u - y)/τ, exact for u held over each step.
+
+    (N,) times, (N,) input -> (N,) output, starting at rest on u[0]. The recurrence
+    y_k = a_k y_(k-1) + (1 - a_k) u_k with a_k = exp(-Δt_k/τ) is evaluated in closed form per
+    block: y_k = e^(-t_k/τ) (y_start + Σ (1 - a_j) u_j e^(t_j/τ)), with times taken from the
+    block start, so there is no per-sample Python loop.
+    """
+    t_s = np.asarray(t_s, dtype=float)
+    u = np.asarray(u, dtype=float)
+    y = np.empty_like(u)
+    y[0] = u[0]
+    dt = np.diff(t_s)
+    gain = -np.expm1(-dt / tau_s)  # 1 - a_k for k >= 1
+    start = 1
+    block_s = _BLOCK_TIME_CONSTANTS * tau_s
+    while start < u.size:
+        stop = int(np.searchsorted(t_s, t_s[start - 1] + block_s, side="right"))
+        stop = max(stop, start + 1)
+        rel = (t_s[start:stop] - t_s[start - 1]) / tau_s
+        grow = np.exp(rel)
+        y[start:stop] = (
+            y[start - 1] + np.cumsum(gain[start - 1 : stop - 1] * u[start:stop] * grow)
+        ) / grow
+        start = stop
+    return y
+
+
+def follow_filter(t_s: np.ndarray, u: np.ndarray, bandwidth_hz: float) -> np.ndarray:
+    """The rail's follow filter: two first-order stages, -3 dB at bandwidth_hz. (N,) -> (N,)."""
+    tau_s = 1.0 / (2.0 * math.pi * bandwidth_hz * _STAGE_FACTOR)
+    return first_order_lowpass(t_s, first_order_lowpass(t_s, u, tau_s), tau_s)
+
+
+def rail_positions(
+    robot: Robot,
+    t_s: np.ndarray,
+    cell_T_tool: np.ndarray,
+    policy: RailPolicy,
+    rail_at_m: float | None = None,
+    bandwidth_hz: float = DEFAULT_BANDWIDTH_HZ,
+) -> np.ndarray | None:
+    """Rail carriage positions (N,) in m for a TCP path (N, 4, 4) in the cell, or None.
+
+    fixed: every sample at rail_at_m (default the rail's home). follow: the TCP's coordinate
+    along the rail axis, low-pass filtered, minus the TCP's along-rail offset from the carriage
+    at the arm's home pose, so that the arm works around home on average. Positions are
+    clipped to the rail's range (a target beyond it then shows as arm reach or limit rows).
+    """
+    if robot.rail is None:
+        if policy is RailPolicy.FOLLOW or rail_at_m is not None:
+            raise ReachgateError(f"{robot.source}: robot {robot.name!r} has no rail")
+        return None
+    rail = robot.rail
+    n = cell_T_tool.shape[0]
+    if policy is RailPolicy.FIXED:
+        at = rail.home if rail_at_m is None else float(rail_at_m)
+        if not rail.lower <= at <= rail.upper:
+            raise ReachgateError(
+                f"--rail-at: {at:g} m is outside the rail range [{rail.lower:g}, {rail.upper:g}] m"
+            )
+        return np.full(n, at)
+    if not (math.isfinite(bandwidth_hz) and bandwidth_hz > 0):
+        raise ReachgateError(
+            f"--rail-bandwidth: must be a positive frequency, got {bandwidth_hz!r}"
+        )
+    rail_axis = robot.cell_T_rail[:3, 0]
+    rail_origin = robot.cell_T_rail[:3, 3]
+    along_m = (cell_T_tool[:, :3, 3] - rail_origin) @ rail_axis
+    home_tcp = forward(robot, robot.home[None])[0, :3, 3]
+    offset_m = (home_tcp - rail_origin) @ rail_axis - rail.home
+    return np.clip(follow_filter(t_s, along_m - offset_m, bandwidth_hz), rail.lower, rail.upper)

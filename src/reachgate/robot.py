@@ -1,0 +1,422 @@
+"""Robot description: load and validate a robot TOML file into a Robot value (DESIGN §3).
+
+Inside the Robot everything is SI (m, rad, s). The arm's DH table is kept in one canonical
+form, the standard (distal) convention, plus a constant prefix transform: a modified (Craig)
+table converts exactly, because Rx(α)·Tx(a) commutes and regroups into standard links.
+"""
+
+from __future__ import annotations
+
+import math
+import tomllib
+from dataclasses import dataclass
+from enum import Enum
+from functools import cached_property
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from reachgate.errors import ReachgateError
+from reachgate.transforms import transform_from_xyz_rpy
+
+
+class Convention(Enum):
+    """Denavit–Hartenberg convention of a robot file."""
+
+    STANDARD = "standard"
+    MODIFIED = "modified"
+
+
+class JointKind(Enum):
+    REVOLUTE = "revolute"
+    PRISMATIC = "prismatic"
+
+
+@dataclass(frozen=True)
+class Axis:
+    """Limits of one moving axis (the rail or an arm joint), SI: rad or m, per s, s², s³.
+
+    jmax_per_s3 is None where the file gives no jerk limit.
+    """
+
+    name: str
+    kind: JointKind
+    lower: float
+    upper: float
+    vmax_per_s: float
+    amax_per_s2: float
+    jmax_per_s3: float | None
+    home: float
+
+    @property
+    def is_revolute(self) -> bool:
+        return self.kind is JointKind.REVOLUTE
+
+
+@dataclass(frozen=True)
+class DHRow:
+    """One row of the DH table as written in the file, SI.
+
+    For a revolute joint theta = q + theta_offset_rad, d = d_m. For a prismatic joint
+    d = q + d_m (the file's offset_m) and theta = theta_offset_rad (the file's theta_deg).
+    """
+
+    a_m: float
+    alpha_rad: float
+    d_m: float
+    theta_offset_rad: float
+
+
+@dataclass(frozen=True)
+class Thresholds:
+    """Warning bands and singularity floors (DESIGN §3); defaults are documented in README."""
+
+    position_margin_rad: float = math.radians(2.0)
+    position_margin_m: float = 0.010
+    rate_margin_fraction: float = 0.10
+    wrist_min_rad: float = math.radians(5.0)
+    elbow_min_rad: float = math.radians(5.0)
+    shoulder_min_m: float = 0.05
+    manipulability_min: float = 0.0
+
+
+@dataclass(frozen=True)
+class Chain:
+    """The arm's DH chain in canonical standard form, arrays of shape (n,).
+
+    base_T_chain: (4, 4) constant prefix (identity for a standard file).
+    Link i: A_i = Rz(theta_i) Tz(d_i) Tx(a_i) Rx(alpha_i) with theta_i = q_i + theta_offset_i for
+    revolute joints and d_i = q_i + d_i for prismatic joints.
+    """
+
+    a_m: np.ndarray
+    alpha_rad: np.ndarray
+    d_m: np.ndarray
+    theta_offset_rad: np.ndarray
+    revolute: np.ndarray
+    base_T_chain: np.ndarray
+
+    @property
+    def n(self) -> int:
+        return int(self.a_m.size)
+
+
+@dataclass(frozen=True, eq=False)
+class Robot:
+    """A validated robot: DH rows, joint and rail limits, mount, tool, thresholds.
+
+    Axis order everywhere (arrays of shape (..., n_axes)): the rail first if there is one,
+    then the arm joints base to flange.
+    """
+
+    name: str
+    convention: Convention
+    rows: tuple[DHRow, ...]
+    joints: tuple[Axis, ...]
+    rail: Axis | None
+    cell_T_rail: np.ndarray
+    carriage_T_base: np.ndarray
+    flange_T_tool: np.ndarray
+    thresholds: Thresholds
+    source: str = "<arrays>"
+
+    @cached_property
+    def axes(self) -> tuple[Axis, ...]:
+        return ((self.rail,) if self.rail is not None else ()) + self.joints
+
+    @property
+    def axis_names(self) -> tuple[str, ...]:
+        return tuple(axis.name for axis in self.axes)
+
+    @property
+    def n_axes(self) -> int:
+        return len(self.axes)
+
+    @property
+    def has_rail(self) -> bool:
+        return self.rail is not None
+
+    @cached_property
+    def lower(self) -> np.ndarray:
+        return np.array([axis.lower for axis in self.axes])
+
+    @cached_property
+    def upper(self) -> np.ndarray:
+        return np.array([axis.upper for axis in self.axes])
+
+    @cached_property
+    def vmax(self) -> np.ndarray:
+        return np.array([axis.vmax_per_s for axis in self.axes])
+
+    @cached_property
+    def amax(self) -> np.ndarray:
+        return np.array([axis.amax_per_s2 for axis in self.axes])
+
+    @cached_property
+    def jmax(self) -> np.ndarray:
+        """Jerk limits (n_axes,), NaN where none is given."""
+        return np.array([np.nan if a.jmax_per_s3 is None else a.jmax_per_s3 for a in self.axes])
+
+    @cached_property
+    def home(self) -> np.ndarray:
+        return np.array([axis.home for axis in self.axes])
+
+    @cached_property
+    def revolute(self) -> np.ndarray:
+        return np.array([axis.is_revolute for axis in self.axes])
+
+    @cached_property
+    def chain(self) -> Chain:
+        return _canonical_chain(self.convention, self.rows, self.joints)
+
+
+def _canonical_chain(
+    convention: Convention, rows: tuple[DHRow, ...], joints: tuple[Axis, ...]
+) -> Chain:
+    a = np.array([r.a_m for r in rows])
+    alpha = np.array([r.alpha_rad for r in rows])
+    d = np.array([r.d_m for r in rows])
+    theta = np.array([r.theta_offset_rad for r in rows])
+    revolute = np.array([j.is_revolute for j in joints])
+    base_T_chain = np.eye(4)
+    if convention is Convention.MODIFIED:
+        # Craig row i holds (alpha_{i-1}, a_{i-1}, theta_i, d_i): the first row's alpha and a
+        # become a constant prefix, the others shift one link down, the last link gets 0, 0.
+        base_T_chain = _rot_x_trans_x(alpha[0], a[0])
+        a = np.append(a[1:], 0.0)
+        alpha = np.append(alpha[1:], 0.0)
+    return Chain(a, alpha, d, theta, revolute, base_T_chain)
+
+
+def _rot_x_trans_x(alpha: float, a: float) -> np.ndarray:
+    c, s = math.cos(alpha), math.sin(alpha)
+    return np.array([[1, 0, 0, a], [0, c, -s, 0], [0, s, c, 0], [0, 0, 0, 1.0]])
+
+
+# --- loading -------------------------------------------------------------------------------
+
+
+class _Table:
+    """A TOML table with the file name and key path, for messages that say where a fault is."""
+
+    def __init__(self, data: Any, file: str, path: str, must_exist: bool = True) -> None:
+        if not isinstance(data, dict):
+            raise ReachgateError(f"{file}: {path or 'top level'} must be a table, got {data!r}")
+        self.data, self.file, self.path = data, file, path
+        self.used: set[str] = set()
+
+    def key(self, name: str) -> str:
+        return f"{self.path}.{name}" if self.path else name
+
+    def fail(self, name: str, message: str) -> ReachgateError:
+        return ReachgateError(f"{self.file}: key {self.key(name)}: {message}")
+
+    def get(self, name: str, default: Any = ...) -> Any:
+        self.used.add(name)
+        if name not in self.data:
+            if default is ...:
+                raise self.fail(name, "missing")
+            return default
+        return self.data[name]
+
+    def number(self, name: str, default: Any = ..., positive: bool = False) -> float:
+        value = self.get(name, default)
+        if value is None:
+            return value
+        if isinstance(value, bool) or not isinstance(value, int | float):
+            raise self.fail(name, f"must be a number, got {value!r}")
+        if not math.isfinite(value):
+            raise self.fail(name, f"must be finite, got {value!r}")
+        if positive and value <= 0:
+            raise self.fail(name, f"must be positive, got {value!r}")
+        return float(value)
+
+    def vector(self, name: str, length: int, default: Any = ...) -> tuple[float, ...]:
+        value = self.get(name, default)
+        if (
+            not isinstance(value, list | tuple)
+            or len(value) != length
+            or any(isinstance(v, bool) or not isinstance(v, int | float) for v in value)
+        ):
+            raise self.fail(name, f"must be a list of {length} numbers, got {value!r}")
+        if not all(math.isfinite(v) for v in value):
+            raise self.fail(name, f"must hold finite numbers, got {value!r}")
+        return tuple(float(v) for v in value)
+
+    def text(self, name: str, default: Any = ...) -> str:
+        value = self.get(name, default)
+        if not isinstance(value, str):
+            raise self.fail(name, f"must be a string, got {value!r}")
+        return value
+
+    def table(self, name: str, optional: bool = False) -> _Table | None:
+        value = self.get(name, None if optional else ...)
+        if value is None:
+            return None
+        return _Table(value, self.file, self.key(name))
+
+    def reject_unknown(self) -> None:
+        unknown = sorted(set(self.data) - self.used)
+        if unknown:
+            raise self.fail(unknown[0], "unknown key (check its spelling and unit suffix)")
+
+
+def _pose(table: _Table) -> np.ndarray:
+    xyz = table.vector("xyz_m", 3, default=[0.0, 0.0, 0.0])
+    rpy = table.vector("rpy_deg", 3, default=[0.0, 0.0, 0.0])
+    table.reject_unknown()
+    return transform_from_xyz_rpy(xyz, np.radians(rpy))
+
+
+def _axis(table: _Table, name: str, kind: JointKind) -> Axis:
+    """Limits of one axis; revolute keys in degrees, prismatic keys in metres."""
+    unit, scale = ("deg", math.pi / 180.0) if kind is JointKind.REVOLUTE else ("m", 1.0)
+    lo, hi = table.vector(f"range_{unit}", 2)
+    if lo >= hi:
+        raise table.fail(f"range_{unit}", f"minimum {lo:g} must be below maximum {hi:g}")
+    vmax = table.number(f"vmax_{unit}_s", positive=True)
+    amax = table.number(f"amax_{unit}_s2", positive=True)
+    jmax = table.number(f"jmax_{unit}_s3", default=None, positive=True)
+    home = table.number(f"home_{unit}", default=0.0 if lo <= 0.0 <= hi else ...)
+    if not lo <= home <= hi:
+        raise table.fail(f"home_{unit}", f"{home:g} is outside the range [{lo:g}, {hi:g}]")
+    return Axis(
+        name=name,
+        kind=kind,
+        lower=lo * scale,
+        upper=hi * scale,
+        vmax_per_s=vmax * scale,
+        amax_per_s2=amax * scale,
+        jmax_per_s3=None if jmax is None else jmax * scale,
+        home=home * scale,
+    )
+
+
+def _joint(table: _Table, index: int) -> tuple[DHRow, Axis]:
+    name = table.text("name", default=f"j{index + 1}")
+    kind_text = table.text("type", default="revolute")
+    try:
+        kind = JointKind(kind_text)
+    except ValueError:
+        raise table.fail("type", f"must be 'revolute' or 'prismatic', got {kind_text!r}") from None
+    a = table.number("a_m")
+    alpha = math.radians(table.number("alpha_deg"))
+    if kind is JointKind.REVOLUTE:
+        d = table.number("d_m")
+        theta = math.radians(table.number("offset_deg", default=0.0))
+    else:
+        d = table.number("offset_m", default=0.0)
+        theta = math.radians(table.number("theta_deg", default=0.0))
+    axis = _axis(table, name, kind)
+    table.reject_unknown()
+    return DHRow(a, alpha, d, theta), axis
+
+
+def _thresholds(table: _Table | None) -> Thresholds:
+    defaults = Thresholds()
+    if table is None:
+        return defaults
+    deg = math.pi / 180.0
+
+    def value(key: str, default_si: float, scale: float = 1.0) -> float:
+        v = table.number(key, default=default_si / scale)
+        if v < 0:
+            raise table.fail(key, f"must not be negative, got {v:g}")
+        return v * scale
+
+    result = Thresholds(
+        position_margin_rad=value("position_margin_deg", defaults.position_margin_rad, deg),
+        position_margin_m=value("position_margin_mm", defaults.position_margin_m, 1e-3),
+        rate_margin_fraction=value("rate_margin_fraction", defaults.rate_margin_fraction),
+        wrist_min_rad=value("wrist_min_deg", defaults.wrist_min_rad, deg),
+        elbow_min_rad=value("elbow_min_deg", defaults.elbow_min_rad, deg),
+        shoulder_min_m=value("shoulder_min_m", defaults.shoulder_min_m),
+        manipulability_min=value("manipulability_min", defaults.manipulability_min),
+    )
+    if result.rate_margin_fraction >= 1.0:
+        raise table.fail("rate_margin_fraction", "must be below 1")
+    table.reject_unknown()
+    return result
+
+
+def robot_from_dict(data: dict[str, Any], source: str = "<dict>") -> Robot:
+    """Validate a parsed robot description (the TOML structure of DESIGN §3) into a Robot."""
+    top = _Table(data, source, "")
+    name = top.text("name")
+    convention_text = top.text("convention", default="standard")
+    try:
+        convention = Convention(convention_text)
+    except ValueError:
+        raise top.fail(
+            "convention", f"must be 'standard' or 'modified', got {convention_text!r}"
+        ) from None
+
+    rail = None
+    cell_T_rail = np.eye(4)
+    rail_table = top.table("rail", optional=True)
+    if rail_table is not None:
+        frame = rail_table.get("frame", default={})
+        cell_T_rail = _pose(_Table(frame, source, rail_table.key("frame")))
+        rail = _axis(rail_table, "rail", JointKind.PRISMATIC)
+        rail_table.reject_unknown()
+
+    mount = top.table("mount", optional=True)
+    carriage_T_base = np.eye(4) if mount is None else _pose(mount)
+
+    joint_list = top.get("joints")
+    if not isinstance(joint_list, list) or not joint_list:
+        raise top.fail("joints", "needs at least one [[joints]] table")
+    parsed = [
+        _joint(_Table(item, source, f"joints[{i + 1}]"), i) for i, item in enumerate(joint_list)
+    ]
+    names = [axis.name for _, axis in parsed]
+    for i, joint_name in enumerate(names):
+        if joint_name in names[:i] or joint_name == "rail":
+            raise ReachgateError(
+                f"{source}: key joints[{i + 1}].name: {joint_name!r} is used twice or reserved"
+            )
+
+    tool = top.table("tool", optional=True)
+    flange_T_tool = np.eye(4) if tool is None else _pose(tool)
+    thresholds = _thresholds(top.table("thresholds", optional=True))
+    top.reject_unknown()
+    return Robot(
+        name=name,
+        convention=convention,
+        rows=tuple(row for row, _ in parsed),
+        joints=tuple(axis for _, axis in parsed),
+        rail=rail,
+        cell_T_rail=cell_T_rail,
+        carriage_T_base=carriage_T_base,
+        flange_T_tool=flange_T_tool,
+        thresholds=thresholds,
+        source=source,
+    )
+
+
+def load_robot(path: str | Path) -> Robot:
+    """Load and validate a robot TOML file. Raises ReachgateError naming file, key and value."""
+    path = Path(path)
+    label = str(path)
+    try:
+        raw = path.read_bytes()
+    except FileNotFoundError:
+        raise ReachgateError(f"{label}: no such file") from None
+    except IsADirectoryError:
+        raise ReachgateError(f"{label}: is a folder, not a robot file") from None
+    except OSError as error:
+        raise ReachgateError(f"{label}: cannot read ({error.strerror})") from None
+    if not raw.strip():
+        raise ReachgateError(f"{label}: the file is empty")
+    try:
+        text = raw.decode("utf-8")
+    except UnicodeDecodeError as error:
+        raise ReachgateError(
+            f"{label}: not a text file (byte {error.start} is not UTF-8)"
+        ) from None
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as error:
+        raise ReachgateError(f"{label}: not valid TOML ({error})") from None
+    return robot_from_dict(data, source=label)
