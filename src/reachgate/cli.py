@@ -20,7 +20,7 @@ app = typer.Typer(
     no_args_is_help=True,
     pretty_exceptions_enable=False,
     rich_markup_mode=None,
-    help="Check, before anything moves, whether an arm (on a rail) can follow a commanded TCP path.",
+    help="Check, before anything moves, whether an arm can follow a commanded TCP path.",
 )
 
 T = TypeVar("T")

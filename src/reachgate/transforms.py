@@ -64,7 +64,7 @@ def quat_to_matrix(q_wxyz: np.ndarray) -> np.ndarray:
 
 
 def matrix_to_quat(R: np.ndarray) -> np.ndarray:
-    """Unit quaternions (scalar-first, qw >= 0) of rotation matrices. ``(..., 3, 3)`` -> ``(..., 4)``.
+    """Unit quaternions (scalar-first, qw >= 0) of rotations. ``(..., 3, 3)`` -> ``(..., 4)``.
 
     Uses the largest-pivot branch per element (Shepperd's method) through ``where`` masks.
     """
