@@ -8,6 +8,7 @@ from __future__ import annotations
 import os
 import sys
 from collections.abc import Callable
+from enum import Enum
 from pathlib import Path
 from typing import Annotated, TypeVar
 
@@ -52,6 +53,111 @@ def _write_or_print(text: str, out: Path | None) -> None:
 
 
 # --- commands are registered below, one section each --------------------------------------
+
+
+class OutputFormat(str, Enum):
+    table = "table"
+    json = "json"
+    csv = "csv"
+
+
+class RailMode(str, Enum):
+    fixed = "fixed"
+    follow = "follow"
+
+
+PlaceOption = Annotated[
+    str | None,
+    typer.Option("--place", help="Scenario frame in the cell: 'x,y,z,roll,pitch,yaw' (m, deg)."),
+]
+RailOption = Annotated[RailMode, typer.Option("--rail", help="Rail policy: fixed or follow.")]
+RailAtOption = Annotated[
+    float | None, typer.Option("--rail-at", help="Fixed rail position, m (default: home).")
+]
+BandwidthOption = Annotated[
+    float, typer.Option("--rail-bandwidth", help="follow: the rail takes motion below this, Hz.")
+]
+LagOption = Annotated[float | None, typer.Option("--lag", help="Loop delay of the rig, s.")]
+LagTolOption = Annotated[
+    float, typer.Option("--lag-tol", help="Tracking error the delay may cause, mm.")
+]
+
+
+def settings_from_options(place, rail, rail_at, rail_bandwidth, lag, lag_tol):
+    """CheckSettings from the shared check/scan options (SI inside)."""
+    from reachgate.check import CheckSettings, Placement
+    from reachgate.rail import RailPolicy
+
+    return CheckSettings(
+        placement=Placement() if place is None else Placement.parse(place),
+        rail=RailPolicy(rail.value),
+        rail_at_m=rail_at,
+        rail_bandwidth_hz=rail_bandwidth,
+        lag_s=lag,
+        lag_tol_m=lag_tol / 1000.0,
+    )
+
+
+# --- check ---
+
+
+@app.command("check")
+def check_command(
+    robot: Annotated[Path, typer.Argument(help="Robot description (TOML).")],
+    trajectory: Annotated[Path, typer.Argument(help="Trajectory (CSV).")],
+    place: PlaceOption = None,
+    rail: RailOption = RailMode.fixed,
+    rail_at: RailAtOption = None,
+    rail_bandwidth: BandwidthOption = 0.5,
+    lag: LagOption = None,
+    lag_tol: LagTolOption = 1.0,
+    fmt: Annotated[
+        OutputFormat, typer.Option("--format", help="Report format.")
+    ] = OutputFormat.table,
+    out: Annotated[Path | None, typer.Option("--out", help="Write the report here.")] = None,
+    joints_out: Annotated[
+        Path | None, typer.Option("--joints-out", help="Write the solved joint trajectory (CSV).")
+    ] = None,
+    plot: Annotated[
+        Path | None,
+        typer.Option("--plot", help="Write a picture of every axis against its limits."),
+    ] = None,
+) -> None:
+    """Check one case: can the arm follow every sample of the trajectory?"""
+    from reachgate.check import check
+    from reachgate.report import render, write_joints
+    from reachgate.robot import load_robot
+    from reachgate.trajectory import load_trajectory
+
+    settings = _guarded(
+        lambda: settings_from_options(place, rail, rail_at, rail_bandwidth, lag, lag_tol)
+    )
+    model = _guarded(lambda: load_robot(robot))
+    path = _guarded(lambda: load_trajectory(trajectory))
+    report = _guarded(lambda: check(model, path, settings))
+    _write_or_print(render(report, fmt.value), out)
+    if joints_out is not None:
+        _guarded(lambda: write_joints(report, joints_out, model.axes))
+    if plot is not None:
+        from reachgate.plot import plot_report
+
+        _guarded(lambda: plot_report(report, model, plot))
+    raise typer.Exit(EXIT_PASS if report.passed else EXIT_FAIL)
+
+
+# --- robot ---
+
+
+@app.command("robot")
+def robot_command(
+    robot: Annotated[Path, typer.Argument(help="Robot description (TOML).")],
+) -> None:
+    """Load, validate and describe a robot: DH table, limits, home pose, reach, IK solver."""
+    from reachgate.describe import describe_robot
+    from reachgate.robot import load_robot
+
+    model = _guarded(lambda: load_robot(robot))
+    _write_or_print(describe_robot(model), None)
 
 
 def main() -> None:

@@ -33,12 +33,11 @@ class Branch:
     wrist: int
 
     def describe(self) -> str:
-        names = {
-            "shoulder": ("front", "back"),
-            "elbow": ("up", "down"),
-            "wrist": ("unflipped", "flipped"),
-        }
-        return ", ".join(f"{key} {names[key][0 if getattr(self, key) > 0 else 1]}" for key in names)
+        """E.g. 'shoulder +, elbow -, wrist +' (signs as defined in the module docstring)."""
+        return ", ".join(
+            f"{key} {'+' if getattr(self, key) > 0 else '-'}"
+            for key in ("shoulder", "elbow", "wrist")
+        )
 
 
 ALL_BRANCHES = tuple(Branch(s, e, w) for s, e, w in product((1, -1), repeat=3))

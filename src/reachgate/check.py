@@ -1,0 +1,313 @@
+"""The main job for one case: TCP path in, Report out (DESIGN §5 `check`, §6 report).
+
+Pipeline, all on whole arrays: placement -> rail policy -> path IK -> derivatives -> every
+check -> intervals, margins and the slow-down factor.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from dataclasses import dataclass, field
+from enum import Enum
+
+import numpy as np
+
+from reachgate import __version__
+from reachgate.checks import RATE_CHECKS, Check, Severity, Violation, intervals, sort_rows
+
+from reachgate.errors import ReachgateError
+from reachgate.ik import PathSolution, solve_path
+from reachgate.kinematics import arm_manipulability
+from reachgate.rail import DEFAULT_BANDWIDTH_HZ, RailPolicy, rail_positions
+from reachgate.robot import Robot
+from reachgate.trajectory import Trajectory
+from reachgate.transforms import transform_from_xyz_rpy
+
+#: Default tracking error a loop delay may cause, m (ours; documented in README).
+DEFAULT_LAG_TOL_M = 0.001
+#: A singularity measure below this multiple of its floor gives a `near` row.
+SINGULARITY_NEAR_FACTOR = 2.0
+#: Samples on each side of an unreachable one whose derivatives are not trusted.
+UNTRUSTED_NEIGHBOURS = 4
+
+
+class Verdict(Enum):
+    PASS = "pass"
+    FAIL = "fail"
+
+
+@dataclass(frozen=True)
+class Placement:
+    """Scenario frame in the cell: translation in m, roll-pitch-yaw in rad."""
+
+    xyz_m: tuple[float, float, float] = (0.0, 0.0, 0.0)
+    rpy_rad: tuple[float, float, float] = (0.0, 0.0, 0.0)
+
+    @classmethod
+    def parse(cls, text: str) -> Placement:
+        """From "x,y,z,roll,pitch,yaw" in m and deg (the --place option)."""
+        parts = [p.strip() for p in text.split(",")]
+        try:
+            values = [float(p) for p in parts]
+        except ValueError:
+            values = []
+        if len(values) != 6 or not all(math.isfinite(v) for v in values):
+            raise ReachgateError(
+                f"--place: expected six numbers 'x,y,z,roll,pitch,yaw' (m, deg), got {text!r}"
+            )
+        return cls(tuple(values[:3]), tuple(math.radians(v) for v in values[3:]))
+
+    def cell_T_scenario(self) -> np.ndarray:
+        return transform_from_xyz_rpy(self.xyz_m, self.rpy_rad)
+
+
+@dataclass(frozen=True)
+class CheckSettings:
+    """How a case is checked: placement, rail policy, loop delay. SI units."""
+
+    placement: Placement = field(default_factory=Placement)
+    rail: RailPolicy = RailPolicy.FIXED
+    rail_at_m: float | None = None
+    rail_bandwidth_hz: float = DEFAULT_BANDWIDTH_HZ
+    lag_s: float | None = None
+    lag_tol_m: float = DEFAULT_LAG_TOL_M
+
+    def __post_init__(self) -> None:
+        if self.lag_s is not None and not (math.isfinite(self.lag_s) and self.lag_s > 0):
+            raise ReachgateError(f"--lag: must be a positive time in s, got {self.lag_s!r}")
+        if not (math.isfinite(self.lag_tol_m) and self.lag_tol_m > 0):
+            raise ReachgateError(f"--lag-tol: must be a positive distance, got {self.lag_tol_m!r}")
+
+    def as_dict(self) -> dict:
+        return {
+            "place_xyz_m": list(self.placement.xyz_m),
+            "place_rpy_deg": [math.degrees(v) for v in self.placement.rpy_rad],
+            "rail": self.rail.value,
+            "rail_at_m": self.rail_at_m,
+            "rail_bandwidth_hz": self.rail_bandwidth_hz,
+            "lag_s": self.lag_s,
+            "lag_tol_m": self.lag_tol_m,
+        }
+
+
+@dataclass(frozen=True, eq=False)
+class Report:
+    """The result of one check. JSON keys as DESIGN §6; arrays kept for plots and exports.
+
+    t_s: (N,) times; solution.q: (N, n_axes) solved axis values (rail first).
+    """
+
+    tool_version: str
+    robot: str
+    trajectory: str
+    samples: int
+    duration_s: float
+    verdict: Verdict
+    violations: tuple[Violation, ...]
+    margins: dict[str, dict[str, float]]
+    slowdown: float | None
+    settings: CheckSettings
+    axis_names: tuple[str, ...]
+    notes: tuple[str, ...]
+    t_s: np.ndarray = field(repr=False)
+    solution: PathSolution = field(repr=False)
+
+    @property
+    def passed(self) -> bool:
+        return self.verdict is Verdict.PASS
+
+    def as_dict(self) -> dict:
+        return {
+            "tool_version": self.tool_version,
+            "robot": self.robot,
+            "trajectory": self.trajectory,
+            "samples": self.samples,
+            "duration_s": self.duration_s,
+            "verdict": self.verdict.value,
+            "violations": [v.as_dict() for v in self.violations],
+            "margins": self.margins,
+            "slowdown": self.slowdown,
+        }
+
+    def to_json(self, indent: int | None = 2) -> str:
+        return json.dumps(self.as_dict(), indent=indent)
+
+
+def _untrusted(mask: np.ndarray) -> np.ndarray:
+    """Grow a (N,) mask by UNTRUSTED_NEIGHBOURS samples each side."""
+    if not mask.any():
+        return mask
+    kernel = np.ones(2 * UNTRUSTED_NEIGHBOURS + 1)
+    return np.convolve(mask.astype(float), kernel, mode="same") > 0
+
+
+def check(robot: Robot, trajectory: Trajectory, settings: CheckSettings | None = None) -> Report:
+    """Check whether the robot can follow every sample of the trajectory. -> Report."""
+    settings = settings or CheckSettings()
+    t = trajectory.t_s
+    cell_T_tool = settings.placement.cell_T_scenario() @ trajectory.scenario_T_tcp()
+    rail_m = rail_positions(
+        robot, t, cell_T_tool, settings.rail, settings.rail_at_m, settings.rail_bandwidth_hz
+    )
+    solution = solve_path(robot, cell_T_tool, rail_m)
+    q = solution.q
+    unreachable = solution.reach_excess_m > 0
+    trusted = ~_untrusted(unreachable)
+    from reachgate.derivatives import time_derivatives
+
+    rates = time_derivatives(t, q)
+    thresholds = robot.thresholds
+    rows: list[Violation] = []
+    margins: dict[str, dict[str, float]] = {}
+    worst_ratio = {Check.SPEED: 0.0, Check.ACCEL: 0.0, Check.JERK: 0.0}
+
+    for i, axis in enumerate(robot.axes):
+        unit = "rad" if axis.is_revolute else "m"
+        qi = q[:, i]
+        mid = 0.5 * (axis.lower + axis.upper)
+        half = 0.5 * (axis.upper - axis.lower)
+        excess = np.maximum(qi - axis.upper, axis.lower - qi)
+        band = thresholds.position_margin_rad if axis.is_revolute else thresholds.position_margin_m
+        excess_seen = np.where(unreachable, -np.inf, excess)
+        rows += intervals(
+            t,
+            excess_seen,
+            band,
+            check=Check.POSITION,
+            axis=axis.name,
+            worst_value=qi,
+            limit_value=np.where(qi >= mid, axis.upper, axis.lower),
+            unit=unit,
+        )
+        axis_margins = {"position": float(np.min(np.where(unreachable, np.inf, -excess)) / half)}
+        limits = [
+            (Check.SPEED, "speed", rates.velocity[:, i], axis.vmax_per_s, f"{unit}/s"),
+            (Check.ACCEL, "accel", rates.acceleration[:, i], axis.amax_per_s2, f"{unit}/s^2"),
+            (Check.JERK, "jerk", rates.jerk[:, i], axis.jmax_per_s3, f"{unit}/s^3"),
+        ]
+        for kind, key, values, limit, rate_unit in limits:
+            if limit is None:
+                continue
+            magnitude = np.where(trusted, np.abs(values), 0.0)
+            rows += intervals(
+                t,
+                magnitude - limit,
+                thresholds.rate_margin_fraction * limit,
+                check=kind,
+                axis=axis.name,
+                worst_value=magnitude,
+                limit_value=limit,
+                unit=rate_unit,
+            )
+            ratio = float(np.max(magnitude) / limit)
+            axis_margins[key] = 1.0 - ratio
+            worst_ratio[kind] = max(worst_ratio[kind], ratio)
+        margins[axis.name] = axis_margins
+
+    rows += _singularity_rows(robot, t, solution, trusted)
+    rows += intervals(
+        t,
+        np.where(unreachable, solution.reach_excess_m, -1.0),
+        0.0,
+        check=Check.REACH,
+        axis="tcp",
+        worst_value=solution.reach_excess_m,
+        limit_value=0.0,
+        unit="m",
+    )
+    if solution.other_branch_fits.any():
+        range_excess = np.max(np.maximum(q - robot.upper, robot.lower - q), axis=1)
+        rows += intervals(
+            t,
+            np.where(solution.other_branch_fits, 1.0 + range_excess, -1.0),
+            0.0,
+            check=Check.BRANCH,
+            axis="arm",
+            worst_value=range_excess,
+            limit_value=0.0,
+            unit="rad",
+        )
+    if settings.lag_s is not None:
+        p = cell_T_tool[:, :3, 3]
+        delayed = np.column_stack([np.interp(t - settings.lag_s, t, p[:, k]) for k in range(3)])
+        error_m = np.linalg.norm(p - delayed, axis=1)
+        rows += intervals(
+            t,
+            error_m - settings.lag_tol_m,
+            thresholds.rate_margin_fraction * settings.lag_tol_m,
+            check=Check.LAG,
+            axis="tcp",
+            worst_value=error_m,
+            limit_value=settings.lag_tol_m,
+            unit="m",
+        )
+
+    rows = sort_rows(rows)
+    failing = [r for r in rows if r.severity is Severity.VIOLATION]
+    slowdown = _slowdown(failing, worst_ratio)
+    notes = ()
+    if trajectory.ignored_columns:
+        notes = (f"columns kept out of the check: {', '.join(trajectory.ignored_columns)}",)
+    return Report(
+        tool_version=__version__,
+        robot=robot.name,
+        trajectory=trajectory.name,
+        samples=trajectory.n_samples,
+        duration_s=trajectory.duration_s,
+        verdict=Verdict.FAIL if failing else Verdict.PASS,
+        violations=tuple(rows),
+        margins=margins,
+        slowdown=slowdown,
+        settings=settings,
+        axis_names=robot.axis_names,
+        notes=notes,
+        t_s=t,
+        solution=solution,
+    )
+
+
+def _singularity_rows(
+    robot: Robot, t: np.ndarray, solution: PathSolution, trusted: np.ndarray
+) -> list[Violation]:
+    th = robot.thresholds
+    floors = {"wrist": th.wrist_min_rad, "elbow": th.elbow_min_rad, "shoulder": th.shoulder_min_m}
+    measures = dict(solution.measures)
+    if not measures and th.manipulability_min > 0:
+        measures["general"] = arm_manipulability(robot, solution.q)
+        floors["general"] = th.manipulability_min
+    rows: list[Violation] = []
+    for kind, measure in measures.items():
+        floor = floors[kind]
+        if floor <= 0:
+            continue
+        unit = {"wrist": "rad", "elbow": "rad", "shoulder": "m", "general": "1"}[kind]
+        rows += intervals(
+            t,
+            np.where(trusted, floor - measure, -np.inf),
+            (SINGULARITY_NEAR_FACTOR - 1) * floor,
+            check=Check.SINGULARITY,
+            axis=kind,
+            worst_value=measure,
+            limit_value=floor,
+            unit=unit,
+        )
+    return rows
+
+
+def _slowdown(failing: list[Violation], worst_ratio: dict[Check, float]) -> float | None:
+    """Smallest uniform time stretch k >= 1 that clears every rate violation, or None.
+
+    Stretching time by k divides speeds by k, accelerations by k², jerks by k³. None when
+    violations remain that no stretch clears and no rate violation is there to clear.
+    """
+    if not failing:
+        return 1.0
+    if not any(r.check in RATE_CHECKS for r in failing):
+        return None
+    return max(
+        1.0,
+        worst_ratio[Check.SPEED],
+        math.sqrt(worst_ratio[Check.ACCEL]),
+        math.cbrt(worst_ratio[Check.JERK]),
+    )

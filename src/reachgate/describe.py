@@ -1,0 +1,127 @@
+"""Text description of a robot for `reachgate robot`: DH table, limits, home, reach, solver."""
+
+from __future__ import annotations
+
+import io
+import math
+
+import numpy as np
+
+from reachgate.ik import solver_kind
+from reachgate.ik_closed import SphericalWristSolver, is_spherical_wrist
+from reachgate.kinematics import cell_T_base, forward
+from reachgate.robot import Robot
+from reachgate.transforms import matrix_to_rpy
+
+#: Random configurations used to estimate the TCP's reach from the base (seeded, repeatable).
+REACH_SAMPLES = 20000
+REACH_SEED = 20261201
+
+
+def sampled_reach_m(robot: Robot) -> float:
+    """Largest TCP distance from the arm base over seeded random in-range configurations, m."""
+    rng = np.random.default_rng(REACH_SEED)
+    q = rng.uniform(robot.lower, robot.upper, size=(REACH_SAMPLES, robot.n_axes))
+    if robot.has_rail:
+        q[:, 0] = robot.rail.home
+    tcp = forward(robot, q)[:, :3, 3]
+    rail = np.full(1, robot.rail.home) if robot.has_rail else None
+    base = cell_T_base(robot, rail).reshape(-1, 4, 4)[0, :3, 3]
+    return float(np.max(np.linalg.norm(tcp - base, axis=1)))
+
+
+def describe_robot(robot: Robot) -> str:
+    """A plain-text page describing a validated robot."""
+    from rich import box
+    from rich.console import Console
+    from rich.table import Table
+
+    buffer = io.StringIO()
+    console = Console(
+        file=buffer,
+        width=110,
+        no_color=True,
+        color_system=None,
+        force_terminal=False,
+        highlight=False,
+        markup=False,
+        emoji=False,
+    )
+    console.print(f"robot: {robot.name} ({robot.source})")
+    console.print(
+        f"DH convention: {robot.convention.value}; {len(robot.joints)} arm joints; "
+        f"rail: {'yes' if robot.has_rail else 'no'}"
+    )
+    dh = Table(box=box.ASCII, pad_edge=False, title=None)
+    for column in ("joint", "type", "a mm", "alpha deg", "d mm", "theta offset deg"):
+        dh.add_column(column, justify="left" if column in ("joint", "type") else "right")
+    for joint, row in zip(robot.joints, robot.rows, strict=True):
+        d_text = f"{row.d_m * 1000:.1f}" + (" + q" if not joint.is_revolute else "")
+        theta_text = f"{math.degrees(row.theta_offset_rad):.2f}" + (
+            " + q" if joint.is_revolute else ""
+        )
+        dh.add_row(
+            joint.name,
+            joint.kind.value,
+            f"{row.a_m * 1000:.1f}",
+            f"{math.degrees(row.alpha_rad):.2f}",
+            d_text,
+            theta_text,
+        )
+    console.print(dh)
+
+    limits = Table(box=box.ASCII, pad_edge=False)
+    for column in ("axis", "unit", "min", "max", "home", "vmax /s", "amax /s^2", "jmax /s^3"):
+        limits.add_column(column, justify="left" if column in ("axis", "unit") else "right")
+    for axis in robot.axes:
+        scale, unit = (180 / math.pi, "deg") if axis.is_revolute else (1000.0, "mm")
+        jmax = "-" if axis.jmax_per_s3 is None else f"{axis.jmax_per_s3 * scale:.1f}"
+        limits.add_row(
+            axis.name,
+            unit,
+            f"{axis.lower * scale:.1f}",
+            f"{axis.upper * scale:.1f}",
+            f"{axis.home * scale:.1f}",
+            f"{axis.vmax_per_s * scale:.1f}",
+            f"{axis.amax_per_s2 * scale:.1f}",
+            jmax,
+        )
+    console.print(limits)
+
+    home = forward(robot, robot.home[None])[0]
+    rpy = np.degrees(matrix_to_rpy(home[:3, :3]))
+    xyz = home[:3, 3] * 1000
+    console.print(
+        f"home TCP in the cell: x {xyz[0]:.1f} y {xyz[1]:.1f} z {xyz[2]:.1f} mm, "
+        f"roll {rpy[0]:.2f} pitch {rpy[1]:.2f} yaw {rpy[2]:.2f} deg"
+    )
+    spherical = is_spherical_wrist(robot.chain)
+    console.print(
+        f"wrist: {'spherical (axes 4, 5, 6 meet in one point)' if spherical else 'not spherical'}"
+    )
+    console.print(f"IK solver: {solver_kind(robot).value}")
+    if spherical:
+        solver = SphericalWristSolver(robot.chain)
+        branch = solver.branch_of(robot.home[-6:] + robot.chain.theta_offset_rad)
+        console.print(f"home branch (kept along every path): {branch.describe()}")
+        console.print(
+            f"wrist-centre reach from the shoulder: {solver.outer_radius_m * 1000:.1f} mm "
+            f"(inner limit {solver.inner_radius_m * 1000:.1f} mm)"
+        )
+    console.print(
+        f"TCP reach from the arm base (sampled over the joint ranges): "
+        f"{sampled_reach_m(robot) * 1000:.1f} mm"
+    )
+    if robot.has_rail:
+        console.print(
+            f"rail travel: {(robot.rail.upper - robot.rail.lower) * 1000:.0f} mm "
+            "along the rail frame's +x"
+        )
+    th = robot.thresholds
+    console.print(
+        f"thresholds: position margin {math.degrees(th.position_margin_rad):.2f} deg / "
+        f"{th.position_margin_m * 1000:.1f} mm, rate margin {th.rate_margin_fraction:.0%}, "
+        f"wrist {math.degrees(th.wrist_min_rad):.1f} deg, elbow {math.degrees(th.elbow_min_rad):.1f} deg, "
+        f"shoulder {th.shoulder_min_m * 1000:.0f} mm, manipulability floor {th.manipulability_min:g}"
+    )
+    return buffer.getvalue()

@@ -1,0 +1,200 @@
+"""Rendering of a check Report: colour-free table, JSON (DESIGN §6) and CSV.
+
+The table shows lengths in mm and angles in degrees; JSON and CSV keep SI units.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import math
+from pathlib import Path
+
+import numpy as np
+
+from reachgate.check import Report
+from reachgate.checks import Severity
+
+SAFETY_CAUTIONS = (
+    "A pass here is not a safety validation of the cell or the path.",
+    "The robot controller's own limits and safety functions stay in force.",
+    "Assess the risks and follow the local codes and the standards for industrial robot cells.",
+    "Run every new path first at reduced speed (at most 250 mm/s at the TCP, the usual "
+    "manual-mode limit of ISO 10218) with nobody inside the safeguarded space.",
+)
+
+#: SI unit -> (display unit, factor) for the table.
+_DISPLAY = {
+    "rad": ("deg", 180.0 / math.pi),
+    "rad/s": ("deg/s", 180.0 / math.pi),
+    "rad/s^2": ("deg/s^2", 180.0 / math.pi),
+    "rad/s^3": ("deg/s^3", 180.0 / math.pi),
+    "m": ("mm", 1000.0),
+    "m/s": ("mm/s", 1000.0),
+    "m/s^2": ("mm/s^2", 1000.0),
+    "m/s^3": ("mm/s^3", 1000.0),
+    "1": ("", 1.0),
+}
+
+CSV_COLUMNS = (
+    "check",
+    "axis",
+    "severity",
+    "start_s",
+    "end_s",
+    "worst_s",
+    "worst",
+    "limit",
+    "unit",
+)
+
+
+def display(value: float, unit: str) -> tuple[str, str]:
+    """A value in SI -> (text in table units, table unit)."""
+    shown_unit, factor = _DISPLAY.get(unit, (unit, 1.0))
+    return f"{value * factor:.4g}" if unit == "1" else f"{value * factor:.2f}", shown_unit
+
+
+def advice(report: Report) -> str:
+    """One line of slow-down advice."""
+    failing = [v for v in report.violations if v.severity is Severity.VIOLATION]
+    if not failing:
+        return "No change needed."
+    if report.slowdown is None:
+        kinds = sorted({v.check.value for v in failing})
+        return (
+            "Slowing down does not clear these violations "
+            f"({', '.join(kinds)}): move the placement, let the rail take more, or change the path."
+        )
+    others = sorted({v.check.value for v in failing} - {"speed", "accel", "jerk"})
+    text = (
+        f"Stretch time by at least {report.slowdown:.3f}x to clear the speed, accel and jerk rows"
+    )
+    if others:
+        text += f"; it does not clear the {', '.join(others)} rows"
+    return text + "."
+
+
+def render_table(report: Report, width: int = 110) -> str:
+    """The colour-free text report: verdict, interval rows, margins, advice, cautions."""
+    from rich import box
+    from rich.console import Console
+    from rich.table import Table
+
+    buffer = io.StringIO()
+    console = Console(
+        file=buffer,
+        width=width,
+        no_color=True,
+        color_system=None,
+        force_terminal=False,
+        highlight=False,
+        emoji=False,
+        markup=False,
+    )
+    n_viol = sum(v.severity is Severity.VIOLATION for v in report.violations)
+    n_near = len(report.violations) - n_viol
+    s = report.settings
+    rail = s.rail.value if "rail" in report.axis_names else "none"
+    if rail == "follow":
+        rail += f" ({s.rail_bandwidth_hz:g} Hz)"
+    elif rail == "fixed" and s.rail_at_m is not None:
+        rail += f" at {s.rail_at_m:g} m"
+    branch = report.solution.branch.describe() if report.solution.branch else "kept from home"
+    console.print(f"reachgate {report.tool_version}: {report.robot} / {report.trajectory}")
+    console.print(
+        f"{report.samples} samples over {report.duration_s:.3f} s; rail {rail}; "
+        f"solver {report.solution.solver.value}; branch {branch}"
+    )
+    for note in report.notes:
+        console.print(f"note: {note}")
+    verdict = "PASS" if report.passed else "FAIL"
+    console.print(f"verdict: {verdict} ({n_viol} violation rows, {n_near} near rows)")
+
+    if report.violations:
+        rows = Table(box=box.ASCII, show_edge=True, pad_edge=False)
+        for title in (
+            "check",
+            "axis",
+            "severity",
+            "from s",
+            "to s",
+            "worst at s",
+            "worst",
+            "limit",
+            "unit",
+        ):
+            justify = (
+                "right" if title in ("from s", "to s", "worst at s", "worst", "limit") else "left"
+            )
+            rows.add_column(title, justify=justify)
+        for v in report.violations:
+            worst, unit = display(v.worst, v.unit)
+            limit, _ = display(v.limit, v.unit)
+            rows.add_row(
+                v.check.value,
+                v.axis,
+                v.severity.value,
+                f"{v.start_s:.3f}",
+                f"{v.end_s:.3f}",
+                f"{v.worst_s:.3f}",
+                worst,
+                limit,
+                unit,
+            )
+        console.print(rows)
+
+    margins = Table(box=box.ASCII, title=None, pad_edge=False)
+    margins.add_column("axis")
+    keys = ("position", "speed", "accel", "jerk")
+    for key in keys:
+        margins.add_column(f"{key} left", justify="right")
+    for axis, values in report.margins.items():
+        margins.add_row(axis, *(f"{values[k]:.2f}" if k in values else "-" for k in keys))
+    console.print(
+        "margins: fraction of each limit left over the run (1 unused, 0 at it, < 0 beyond)"
+    )
+    console.print(margins)
+    console.print(f"advice: {advice(report)}")
+    console.print("cautions:")
+    for line in SAFETY_CAUTIONS:
+        console.print(f"  - {line}")
+    return buffer.getvalue()
+
+
+def render_csv(report: Report) -> str:
+    """One line per violation interval, SI units, with a header."""
+    buffer = io.StringIO()
+    writer = csv.writer(buffer, lineterminator="\n")
+    writer.writerow(CSV_COLUMNS)
+    for v in report.violations:
+        d = v.as_dict()
+        writer.writerow([repr(d[c]) if isinstance(d[c], float) else d[c] for c in CSV_COLUMNS])
+    return buffer.getvalue()
+
+
+def render(report: Report, fmt: str) -> str:
+    if fmt == "json":
+        return report.to_json() + "\n"
+    if fmt == "csv":
+        return render_csv(report)
+    return render_table(report)
+
+
+def write_joints(report: Report, path: Path, robot_axes) -> None:
+    """The solved joint trajectory as CSV: t_s then one column per axis (deg or m)."""
+    q = report.solution.q
+    columns = ["t_s"]
+    scaled = [report.t_s]
+    for i, axis in enumerate(robot_axes):
+        if axis.is_revolute:
+            columns.append(f"{axis.name}_deg")
+            scaled.append(np.degrees(q[:, i]))
+        else:
+            columns.append(f"{axis.name}_m")
+            scaled.append(q[:, i])
+    data = np.column_stack(scaled)
+    with open(path, "w", encoding="utf-8", newline="\n") as handle:
+        handle.write(f"# solved joint trajectory of {report.trajectory} on {report.robot}\n")
+        handle.write(",".join(columns) + "\n")
+        np.savetxt(handle, data, delimiter=",", fmt="%.17g")
