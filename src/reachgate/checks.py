@@ -72,7 +72,9 @@ def _argmax_per_run(values: np.ndarray, starts: np.ndarray, stops: np.ndarray) -
     """Index of the largest value in each run (first one on ties), without a loop over runs."""
     if starts.size == 0:
         return starts
-    run_max = np.maximum.reduceat(values, starts)
+    # Interleaved [start, stop) bounds: every even segment is exactly one run.
+    padded = np.append(values, -np.inf)
+    run_max = np.maximum.reduceat(padded, np.ravel(np.column_stack([starts, stops])))[::2]
     lengths = stops - starts
     run_of = np.repeat(np.arange(starts.size), lengths)
     index = _ranges(starts, lengths)
@@ -132,8 +134,9 @@ def intervals(
     if band > 0:
         near_starts, near_stops = _runs(excess > -band)
         if near_starts.size:
-            crossed = np.maximum.reduceat(over, near_starts) if over.any() else None
-            keep = np.ones(near_starts.size, bool) if crossed is None else ~crossed.astype(bool)
+            # a near run that holds any violation sample is reported by its violation rows
+            crossed = np.maximum.reduceat(over, near_starts)
+            keep = ~crossed
             emit(near_starts[keep], near_stops[keep], Severity.NEAR)
     return rows
 

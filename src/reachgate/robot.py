@@ -364,7 +364,7 @@ def robot_from_dict(data: dict[str, Any], source: str = "<dict>") -> Robot:
     mount = top.table("mount", optional=True)
     carriage_T_base = np.eye(4) if mount is None else _pose(mount)
 
-    joint_list = top.get("joints")
+    joint_list = top.get("joints", default=None)
     if not isinstance(joint_list, list) or not joint_list:
         raise top.fail("joints", "needs at least one [[joints]] table")
     parsed = [
