@@ -22,7 +22,7 @@ def minimum_jerk(s: np.ndarray) -> np.ndarray:
     return 10 * s**3 - 15 * s**4 + 6 * s**5
 
 
-def approach(duration_s: float, seed: int, *, lateral_m=0.0, pitch_down_deg=0.0, gust=0.0):
+def approach(duration_s: float, seed: int, *, lateral_m=0.0, pitch_up_deg=0.0, gust=0.0):
     """Times (N,), positions (N, 3) m and rpy (N, 3) rad of one approach."""
     rng = np.random.default_rng(seed)
     step = 1.0 / RATE_HZ
@@ -32,7 +32,7 @@ def approach(duration_s: float, seed: int, *, lateral_m=0.0, pitch_down_deg=0.0,
     y = 0.05 * np.sin(2 * np.pi * 0.3 * t) + lateral_m * s
     z = 2.1 - 0.8 * s + 0.02 * np.sin(2 * np.pi * 0.7 * t)
     roll = np.radians(3.0) * np.sin(2 * np.pi * 0.5 * t)
-    pitch = np.radians(3.0) * np.sin(2 * np.pi * 0.4 * t + 1.0) - np.radians(pitch_down_deg) * s
+    pitch = np.radians(3.0) * np.sin(2 * np.pi * 0.4 * t + 1.0) - np.radians(pitch_up_deg) * s
     yaw = np.radians(10.0) * np.sin(2 * np.pi * 0.05 * t)
     if gust:
         # a gust burst in the middle of the approach, 2.5 Hz roll and 1.8 Hz pitch
@@ -71,11 +71,11 @@ def main() -> None:
     t, p, rpy = approach(40.0, seed=3, lateral_m=2.9)
     write_case("approach_wide.csv", "vehicle drifts 2.9 m sideways: the pad leaves the arm's reach",
                t, p, rpy)
-    t, p, rpy = approach(40.0, seed=4, pitch_down_deg=60.0)
-    write_case("approach_steep.csv", "steep nose-down final: the wrist passes its straight pose",
+    t, p, rpy = approach(40.0, seed=4, pitch_up_deg=40.0)
+    write_case("approach_steep.csv", "steep pitch-up final: the wrist passes its straight pose",
                t, p, rpy)
-    t, p, rpy = approach(6.0, seed=5)
-    write_case("approach_rushed.csv", "the whole approach in 6 s: rail and arm too slow",
+    t, p, rpy = approach(3.5, seed=5)
+    write_case("approach_rushed.csv", "the whole approach in 3.5 s: rail and arm too slow",
                t, p, rpy)
 
 

@@ -15,7 +15,7 @@ import numpy as np
 
 from reachgate import __version__
 from reachgate.checks import RATE_CHECKS, Check, Severity, Violation, intervals, sort_rows
-
+from reachgate.derivatives import time_derivatives
 from reachgate.errors import ReachgateError
 from reachgate.ik import PathSolution, solve_path
 from reachgate.kinematics import arm_manipulability
@@ -154,8 +154,6 @@ def check(robot: Robot, trajectory: Trajectory, settings: CheckSettings | None =
     q = solution.q
     unreachable = solution.reach_excess_m > 0
     trusted = ~_untrusted(unreachable)
-    from reachgate.derivatives import time_derivatives
-
     rates = time_derivatives(t, q)
     thresholds = robot.thresholds
     rows: list[Violation] = []

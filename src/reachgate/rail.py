@@ -33,12 +33,14 @@ class RailPolicy(Enum):
 
 
 def first_order_lowpass(t_s: np.ndarray, u: np.ndarray, tau_s: float) -> np.ndarray:
-    """Causal first-order low-pass y' = (u - y)/τ, exact for u held over each step.
+    """Causal first-order low-pass y' = (u - y)/τ, exact for u linear over each step.
 
-    (N,) times, (N,) input -> (N,) output, starting at rest on u[0]. The recurrence
-    y_k = a_k y_(k-1) + (1 - a_k) u_k with a_k = exp(-Δt_k/τ) is evaluated in closed form per
-    block: y_k = e^(-t_k/τ) (y_start + Σ (1 - a_j) u_j e^(t_j/τ)), with times taken from the
-    block start, so there is no per-sample Python loop.
+    (N,) times, (N,) input -> (N,) output, starting at rest on u[0]. Linear interpolation of u
+    between samples (first-order hold) keeps the output's derivatives free of the steps a
+    held input would put into them. The recurrence y_k = a_k y_(k-1) + c_k, with
+    a_k = exp(-Δt_k/τ) and c_k = u_k - a_k u_(k-1) - (u_k - u_(k-1)) (1 - a_k) τ/Δt_k, is
+    evaluated in closed form per block, y_k = e^(-t_k/τ) (y_start + Σ c_j e^(t_j/τ)) with times
+    from the block start, so there is no per-sample Python loop.
     """
     t_s = np.asarray(t_s, dtype=float)
     u = np.asarray(u, dtype=float)
@@ -46,6 +48,8 @@ def first_order_lowpass(t_s: np.ndarray, u: np.ndarray, tau_s: float) -> np.ndar
     y[0] = u[0]
     dt = np.diff(t_s)
     gain = -np.expm1(-dt / tau_s)  # 1 - a_k for k >= 1
+    du = np.diff(u)
+    drive = u[1:] - (1.0 - gain) * u[:-1] - du * gain * (tau_s / dt)  # c_k for k >= 1
     start = 1
     block_s = _BLOCK_TIME_CONSTANTS * tau_s
     while start < u.size:
@@ -53,9 +57,7 @@ def first_order_lowpass(t_s: np.ndarray, u: np.ndarray, tau_s: float) -> np.ndar
         stop = max(stop, start + 1)
         rel = (t_s[start:stop] - t_s[start - 1]) / tau_s
         grow = np.exp(rel)
-        y[start:stop] = (
-            y[start - 1] + np.cumsum(gain[start - 1 : stop - 1] * u[start:stop] * grow)
-        ) / grow
+        y[start:stop] = (y[start - 1] + np.cumsum(drive[start - 1 : stop - 1] * grow)) / grow
         start = stop
     return y
 
