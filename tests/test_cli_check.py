@@ -39,14 +39,30 @@ def test_json_report_has_the_design_keys():
     result = run("check", str(DEMO_ROBOT), GUSTY, "--rail", "follow", "--format", "json")
     report = json.loads(result.output)
     assert set(report) == {
-        "tool_version", "robot", "trajectory", "samples", "duration_s", "verdict",
-        "violations", "margins", "slowdown",
+        "tool_version",
+        "robot",
+        "trajectory",
+        "samples",
+        "duration_s",
+        "verdict",
+        "violations",
+        "margins",
+        "slowdown",
     }
     assert report["robot"] == "demo rail arm"
     assert report["trajectory"] == "approach_gusty.csv"
     row = report["violations"][0]
-    assert set(row) == {"check", "axis", "severity", "start_s", "end_s", "worst_s", "worst",
-                        "limit", "unit"}
+    assert set(row) == {
+        "check",
+        "axis",
+        "severity",
+        "start_s",
+        "end_s",
+        "worst_s",
+        "worst",
+        "limit",
+        "unit",
+    }
     assert set(report["margins"]["j1"]) >= {"position", "speed", "accel"}
 
 
@@ -61,8 +77,9 @@ def test_gusty_demo_fails_on_rates_and_gets_slowdown_advice():
 
 def test_csv_format_and_out_file(tmp_path):
     out = tmp_path / "rows.csv"
-    result = run("check", str(DEMO_ROBOT), GUSTY, "--rail", "follow", "--format", "csv",
-                 "--out", str(out))
+    result = run(
+        "check", str(DEMO_ROBOT), GUSTY, "--rail", "follow", "--format", "csv", "--out", str(out)
+    )
     assert result.exit_code == 1
     lines = out.read_text().splitlines()
     assert lines[0] == "check,axis,severity,start_s,end_s,worst_s,worst,limit,unit"
@@ -79,8 +96,19 @@ def test_joints_out_writes_the_solved_trajectory(tmp_path):
 
 
 def test_lag_check_reports_tracking_error():
-    result = run("check", str(DEMO_ROBOT), CALM, "--rail", "follow", "--lag", "0.2",
-                 "--lag-tol", "5", "--format", "json")
+    result = run(
+        "check",
+        str(DEMO_ROBOT),
+        CALM,
+        "--rail",
+        "follow",
+        "--lag",
+        "0.2",
+        "--lag-tol",
+        "5",
+        "--format",
+        "json",
+    )
     report = json.loads(result.output)
     lag_rows = [v for v in report["violations"] if v["check"] == "lag"]
     assert lag_rows and lag_rows[0]["unit"] == "m" and lag_rows[0]["limit"] == pytest.approx(0.005)

@@ -68,42 +68,53 @@ def test_invalid_toml_is_refused(tmp_path):
 
 
 def test_missing_key_is_named(tmp_path):
-    fails_with(tmp_path, GOOD.replace('a_m = 1.05\n', "", 1), "joints[2].a_m", "missing")
+    fails_with(tmp_path, GOOD.replace("a_m = 1.05\n", "", 1), "joints[2].a_m", "missing")
 
 
 def test_wrong_type_is_named(tmp_path):
     fails_with(
-        tmp_path, GOOD.replace("vmax_deg_s = 110.0", 'vmax_deg_s = "fast"', 1),
-        "joints[1].vmax_deg_s", "must be a number", "'fast'",
+        tmp_path,
+        GOOD.replace("vmax_deg_s = 110.0", 'vmax_deg_s = "fast"', 1),
+        "joints[1].vmax_deg_s",
+        "must be a number",
+        "'fast'",
     )
 
 
 def test_range_min_above_max_is_refused(tmp_path):
     fails_with(
-        tmp_path, GOOD.replace("range_deg = [-140.0, 20.0]", "range_deg = [20.0, -140.0]"),
-        "joints[2].range_deg", "minimum 20 must be below maximum -140",
+        tmp_path,
+        GOOD.replace("range_deg = [-140.0, 20.0]", "range_deg = [20.0, -140.0]"),
+        "joints[2].range_deg",
+        "minimum 20 must be below maximum -140",
     )
 
 
 @pytest.mark.parametrize("value", ["0.0", "-5.0"])
 def test_non_positive_limit_is_refused(tmp_path, value):
     fails_with(
-        tmp_path, GOOD.replace("amax_m_s2 = 2.0", f"amax_m_s2 = {value}"),
-        "rail.amax_m_s2", "must be positive",
+        tmp_path,
+        GOOD.replace("amax_m_s2 = 2.0", f"amax_m_s2 = {value}"),
+        "rail.amax_m_s2",
+        "must be positive",
     )
 
 
 def test_home_outside_range_is_refused(tmp_path):
     fails_with(
-        tmp_path, GOOD.replace("home_deg = -40.0", "home_deg = 45.0"),
-        "joints[2].home_deg", "outside the range",
+        tmp_path,
+        GOOD.replace("home_deg = -40.0", "home_deg = 45.0"),
+        "joints[2].home_deg",
+        "outside the range",
     )
 
 
 def test_unknown_convention_is_refused(tmp_path):
     fails_with(
-        tmp_path, GOOD.replace('convention = "standard"', 'convention = "craigish"'),
-        "key convention", "'craigish'",
+        tmp_path,
+        GOOD.replace('convention = "standard"', 'convention = "craigish"'),
+        "key convention",
+        "'craigish'",
     )
 
 
@@ -113,13 +124,18 @@ def test_no_joints_is_refused(tmp_path):
 
 
 def test_unknown_key_is_refused(tmp_path):
-    fails_with(tmp_path, GOOD.replace("d_m = 0.68", "d_m = 0.68\nd_mm = 680"), "joints[1].d_mm",
-               "unknown key")
+    fails_with(
+        tmp_path,
+        GOOD.replace("d_m = 0.68", "d_m = 0.68\nd_mm = 680"),
+        "joints[1].d_mm",
+        "unknown key",
+    )
 
 
 def test_unknown_joint_type_is_refused(tmp_path):
-    fails_with(tmp_path, GOOD.replace('name = "j1"', 'name = "j1"\ntype = "spherical"'),
-               "joints[1].type")
+    fails_with(
+        tmp_path, GOOD.replace('name = "j1"', 'name = "j1"\ntype = "spherical"'), "joints[1].type"
+    )
 
 
 def test_duplicate_joint_name_is_refused(tmp_path):
@@ -127,13 +143,20 @@ def test_duplicate_joint_name_is_refused(tmp_path):
 
 
 def test_negative_threshold_is_refused(tmp_path):
-    fails_with(tmp_path, GOOD.replace("wrist_min_deg = 5.0", "wrist_min_deg = -1.0"),
-               "thresholds.wrist_min_deg")
+    fails_with(
+        tmp_path,
+        GOOD.replace("wrist_min_deg = 5.0", "wrist_min_deg = -1.0"),
+        "thresholds.wrist_min_deg",
+    )
 
 
 def test_bad_vector_length_is_refused(tmp_path):
-    fails_with(tmp_path, GOOD.replace("xyz_m = [0.0, 0.0, 0.45]", "xyz_m = [0.0, 0.45]"),
-               "mount.xyz_m", "3 numbers")
+    fails_with(
+        tmp_path,
+        GOOD.replace("xyz_m = [0.0, 0.0, 0.45]", "xyz_m = [0.0, 0.45]"),
+        "mount.xyz_m",
+        "3 numbers",
+    )
 
 
 def test_modified_convention_converts_to_an_equivalent_standard_chain():
@@ -145,13 +168,28 @@ def test_modified_convention_converts_to_an_equivalent_standard_chain():
     a, alpha, d = rng.uniform(-0.5, 0.5, 4), rng.uniform(-np.pi, np.pi, 4), rng.uniform(0, 0.5, 4)
 
     def joint(i, a_i, alpha_i):
-        return dict(name=f"j{i}", a_m=float(a_i), alpha_deg=math.degrees(alpha_i), d_m=float(d[i]),
-                    range_deg=[-360.0, 360.0], vmax_deg_s=1.0, amax_deg_s2=1.0)
+        return dict(
+            name=f"j{i}",
+            a_m=float(a_i),
+            alpha_deg=math.degrees(alpha_i),
+            d_m=float(d[i]),
+            range_deg=[-360.0, 360.0],
+            vmax_deg_s=1.0,
+            amax_deg_s2=1.0,
+        )
 
-    modified = robot_from_dict(dict(name="m", convention="modified",
-                                    joints=[joint(i, a[i], alpha[i]) for i in range(4)]))
-    standard = robot_from_dict(dict(name="s", joints=[
-        joint(i, a[i + 1] if i < 3 else 0.0, alpha[i + 1] if i < 3 else 0.0) for i in range(4)]))
+    modified = robot_from_dict(
+        dict(name="m", convention="modified", joints=[joint(i, a[i], alpha[i]) for i in range(4)])
+    )
+    standard = robot_from_dict(
+        dict(
+            name="s",
+            joints=[
+                joint(i, a[i + 1] if i < 3 else 0.0, alpha[i + 1] if i < 3 else 0.0)
+                for i in range(4)
+            ],
+        )
+    )
     q = rng.uniform(-np.pi, np.pi, (50, 4))
     prefix = modified.chain.base_T_chain
     np.testing.assert_allclose(forward(modified, q), prefix @ forward(standard, q), atol=1e-12)

@@ -17,7 +17,7 @@ from reachgate import __version__
 from reachgate.checks import RATE_CHECKS, Check, Severity, Violation, intervals, sort_rows
 from reachgate.derivatives import time_derivatives
 from reachgate.errors import ReachgateError
-from reachgate.ik import PathSolution, solve_path
+from reachgate.ik import PathSolution, solve_trajectory
 from reachgate.kinematics import arm_manipulability
 from reachgate.rail import DEFAULT_BANDWIDTH_HZ, RailPolicy, rail_positions
 from reachgate.robot import Robot
@@ -146,11 +146,12 @@ def check(robot: Robot, trajectory: Trajectory, settings: CheckSettings | None =
     """Check whether the robot can follow every sample of the trajectory. -> Report."""
     settings = settings or CheckSettings()
     t = trajectory.t_s
-    cell_T_tool = settings.placement.cell_T_scenario() @ trajectory.scenario_T_tcp()
+    cell_T_scenario = settings.placement.cell_T_scenario()
+    cell_p_tcp = trajectory.scenario_p_m @ cell_T_scenario[:3, :3].T + cell_T_scenario[:3, 3]
     rail_m = rail_positions(
-        robot, t, cell_T_tool, settings.rail, settings.rail_at_m, settings.rail_bandwidth_hz
+        robot, t, cell_p_tcp, settings.rail, settings.rail_at_m, settings.rail_bandwidth_hz
     )
-    solution = solve_path(robot, cell_T_tool, rail_m)
+    solution = solve_trajectory(robot, trajectory, cell_T_scenario, rail_m)
     q = solution.q
     unreachable = solution.reach_excess_m > 0
     trusted = ~_untrusted(unreachable)
@@ -227,9 +228,10 @@ def check(robot: Robot, trajectory: Trajectory, settings: CheckSettings | None =
             unit="rad",
         )
     if settings.lag_s is not None:
-        p = cell_T_tool[:, :3, 3]
-        delayed = np.column_stack([np.interp(t - settings.lag_s, t, p[:, k]) for k in range(3)])
-        error_m = np.linalg.norm(p - delayed, axis=1)
+        delayed = np.column_stack(
+            [np.interp(t - settings.lag_s, t, cell_p_tcp[:, k]) for k in range(3)]
+        )
+        error_m = np.linalg.norm(cell_p_tcp - delayed, axis=1)
         rows += intervals(
             t,
             error_m - settings.lag_tol_m,

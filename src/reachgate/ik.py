@@ -17,12 +17,15 @@ from reachgate.ik_closed import ALL_BRANCHES, Branch, SphericalWristSolver, is_s
 from reachgate.ik_numeric import solve_path_numeric
 from reachgate.kinematics import cell_T_base, forward
 from reachgate.robot import Robot
-from reachgate.transforms import invert_transform, rotation_angle
+from reachgate.trajectory import Trajectory
+from reachgate.transforms import invert_transform, quat_to_matrix, rotation_angle, transform
 
 #: A solved sample whose FK misses the target by more than this is counted unreachable (m, rad).
 RESIDUAL_TOL_M = 1e-9
 RESIDUAL_TOL_RAD = 1e-9
 TWO_PI = 2.0 * np.pi
+#: Samples solved at once; bounds the (chunk, 4, 4) work arrays to a few tens of MB.
+CHUNK_SAMPLES = 100_000
 
 
 class SolverKind(Enum):
@@ -79,12 +82,65 @@ def _fits_range(theta: np.ndarray, lower: np.ndarray, upper: np.ndarray) -> np.n
     return (shifted <= upper).all(axis=1)
 
 
-def solve_path(robot: Robot, cell_T_tool: np.ndarray, rail_m: np.ndarray | None) -> PathSolution:
-    """Joint values for a TCP path (N, 4, 4) in the cell with given rail positions (N,)."""
+def solve_trajectory(
+    robot: Robot,
+    trajectory: Trajectory,
+    cell_T_scenario: np.ndarray,
+    rail_m: np.ndarray | None,
+    chunk_samples: int = CHUNK_SAMPLES,
+) -> PathSolution:
+    """Joint values for a whole trajectory, in chunks so memory stays bounded.
+
+    cell_T_scenario: (4, 4) placement; rail_m: (N,) rail positions or None. Each chunk
+    continues from the last joint values of the one before, so the result equals one solve.
+    """
+    n = trajectory.n_samples
+    parts: list[PathSolution] = []
+    start_arm = None
+    for first in range(0, n, chunk_samples):
+        part = slice(first, min(first + chunk_samples, n))
+        scenario_T_tcp = transform(
+            quat_to_matrix(trajectory.scenario_q_wxyz[part]), trajectory.scenario_p_m[part]
+        )
+        solved = solve_path(
+            robot,
+            cell_T_scenario @ scenario_T_tcp,
+            None if rail_m is None else rail_m[part],
+            start_arm=start_arm,
+        )
+        parts.append(solved)
+        start_arm = solved.q[-1, 1:] if robot.has_rail else solved.q[-1]
+    if len(parts) == 1:
+        return parts[0]
+    first = parts[0]
+    return PathSolution(
+        q=np.concatenate([p.q for p in parts]),
+        solver=first.solver,
+        branch=first.branch,
+        reach_excess_m=np.concatenate([p.reach_excess_m for p in parts]),
+        position_error_m=np.concatenate([p.position_error_m for p in parts]),
+        orientation_error_rad=np.concatenate([p.orientation_error_rad for p in parts]),
+        other_branch_fits=np.concatenate([p.other_branch_fits for p in parts]),
+        measures={k: np.concatenate([p.measures[k] for p in parts]) for k in first.measures},
+    )
+
+
+def solve_path(
+    robot: Robot,
+    cell_T_tool: np.ndarray,
+    rail_m: np.ndarray | None,
+    start_arm: np.ndarray | None = None,
+) -> PathSolution:
+    """Joint values for a TCP path (N, 4, 4) in the cell with given rail positions (N,).
+
+    start_arm: (n,) arm values the path continues from (default: home); the branch is always
+    the home configuration's.
+    """
     targets = chain_targets(robot, cell_T_tool, rail_m)
     chain = robot.chain
     arm = slice(1, None) if robot.has_rail else slice(None)
     home_arm = robot.home[arm]
+    previous = home_arm if start_arm is None else np.asarray(start_arm, dtype=float)
     lower, upper = robot.lower[arm], robot.upper[arm]
     n_samples = targets.shape[0]
 
@@ -92,7 +148,7 @@ def solve_path(robot: Robot, cell_T_tool: np.ndarray, rail_m: np.ndarray | None)
         solver = SphericalWristSolver(chain)
         branch = solver.branch_of(home_arm + chain.theta_offset_rad)
         sol = solver.solve(targets, branch)
-        q_arm = continuous_angles(sol.theta - chain.theta_offset_rad, home_arm)
+        q_arm = continuous_angles(sol.theta - chain.theta_offset_rad, previous)
         reach = sol.reach_excess_m
         measures = {"shoulder": sol.shoulder_m, "elbow": sol.elbow_rad, "wrist": sol.wrist_rad}
         outside = ~((q_arm >= lower) & (q_arm <= upper)).all(axis=1) & (reach == 0)
@@ -105,7 +161,7 @@ def solve_path(robot: Robot, cell_T_tool: np.ndarray, rail_m: np.ndarray | None)
                 other_fits[outside] |= _fits_range(alt, lower, upper)
         kind, kept = SolverKind.CLOSED_FORM, branch
     else:
-        numeric = solve_path_numeric(chain, targets, home_arm)
+        numeric = solve_path_numeric(chain, targets, previous)
         q_arm = numeric.q_arm
         reach = np.where(numeric.solved, 0.0, numeric.position_error_m)
         measures = {}

@@ -71,12 +71,12 @@ def follow_filter(t_s: np.ndarray, u: np.ndarray, bandwidth_hz: float) -> np.nda
 def rail_positions(
     robot: Robot,
     t_s: np.ndarray,
-    cell_T_tool: np.ndarray,
+    cell_p_tcp: np.ndarray,
     policy: RailPolicy,
     rail_at_m: float | None = None,
     bandwidth_hz: float = DEFAULT_BANDWIDTH_HZ,
 ) -> np.ndarray | None:
-    """Rail carriage positions (N,) in m for a TCP path (N, 4, 4) in the cell, or None.
+    """Rail carriage positions (N,) in m for TCP positions (N, 3) in the cell, or None.
 
     fixed: every sample at rail_at_m (default the rail's home). follow: the TCP's coordinate
     along the rail axis, low-pass filtered, minus the TCP's along-rail offset from the carriage
@@ -88,7 +88,7 @@ def rail_positions(
             raise ReachgateError(f"{robot.source}: robot {robot.name!r} has no rail")
         return None
     rail = robot.rail
-    n = cell_T_tool.shape[0]
+    n = cell_p_tcp.shape[0]
     if policy is RailPolicy.FIXED:
         at = rail.home if rail_at_m is None else float(rail_at_m)
         if not rail.lower <= at <= rail.upper:
@@ -102,7 +102,7 @@ def rail_positions(
         )
     rail_axis = robot.cell_T_rail[:3, 0]
     rail_origin = robot.cell_T_rail[:3, 3]
-    along_m = (cell_T_tool[:, :3, 3] - rail_origin) @ rail_axis
+    along_m = (cell_p_tcp - rail_origin) @ rail_axis
     home_tcp = forward(robot, robot.home[None])[0, :3, 3]
     offset_m = (home_tcp - rail_origin) @ rail_axis - rail.home
     return np.clip(follow_filter(t_s, along_m - offset_m, bandwidth_hz), rail.lower, rail.upper)

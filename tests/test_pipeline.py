@@ -1,0 +1,105 @@
+"""The check pipeline's own invariants: chunking, rail policies, slow-down, margins."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from conftest import DEMO_ROBOT
+
+import reachgate
+from reachgate.ik import solve_trajectory
+from reachgate.rail import RailPolicy, first_order_lowpass, follow_filter
+
+
+@pytest.fixture(scope="module")
+def robot():
+    return reachgate.load_robot(DEMO_ROBOT)
+
+
+def sway_path(duration_s=8.0, rate_hz=250.0, amplitude_m=0.1, freq_hz=0.5, seed=5):
+    rng = np.random.default_rng(seed)
+    t = np.cumsum(np.r_[0.0, rng.uniform(0.8, 1.2, int(duration_s * rate_hz)) / rate_hz])
+    p = np.column_stack(
+        [
+            2.9 + amplitude_m * np.sin(2 * np.pi * freq_hz * t),
+            0.2 * np.sin(2 * np.pi * 0.2 * t),
+            np.full(t.size, 1.7),
+        ]
+    )
+    rpy = np.column_stack([np.zeros_like(t), 0.1 * np.sin(2 * np.pi * 0.3 * t), np.zeros_like(t)])
+    return reachgate.Trajectory.from_arrays(t, p, rpy_rad=rpy, name="sway")
+
+
+def test_chunked_solution_equals_one_solve(robot):
+    path = sway_path()
+    place = np.eye(4)
+    rail = np.full(path.n_samples, robot.rail.home)
+    whole = solve_trajectory(robot, path, place, rail, chunk_samples=10**9)
+    chunked = solve_trajectory(robot, path, place, rail, chunk_samples=97)
+    np.testing.assert_array_equal(whole.q, chunked.q)
+    for kind in whole.measures:
+        np.testing.assert_array_equal(whole.measures[kind], chunked.measures[kind])
+
+
+def test_first_order_lowpass_matches_the_analytic_step_and_ramp_responses():
+    """Analytic: a ramp u = r t from rest gives y = r (t - τ (1 - e^(-t/τ))) (linear ODE)."""
+    rng = np.random.default_rng(21)
+    t = np.cumsum(np.r_[0.0, rng.uniform(0.8, 1.2, 5000) * 1e-3])
+    tau = 0.07
+    y = first_order_lowpass(t, 0.3 * t, tau)
+    np.testing.assert_allclose(y, 0.3 * (t - tau * (1 - np.exp(-t / tau))), atol=1e-12)
+
+
+def test_follow_filter_has_its_minus_3_db_point_at_the_bandwidth():
+    """Two equal first-order stages: |H(f_bw)| = 1/sqrt(2) by construction (filter algebra)."""
+    bandwidth = 0.5
+    t = np.arange(0, 60, 1e-3)
+    gains = {}
+    for f in (bandwidth, 0.05, 5.0):
+        y = follow_filter(t, np.sin(2 * np.pi * f * t), bandwidth)
+        gains[f] = np.ptp(y[t > 40]) / 2
+    corner = bandwidth / np.sqrt(np.sqrt(2) - 1)  # of each stage
+    for f, gain in gains.items():
+        assert gain == pytest.approx(1 / (1 + (f / corner) ** 2), rel=2e-3)
+    assert gains[bandwidth] == pytest.approx(1 / np.sqrt(2), rel=2e-3)
+
+
+def test_rail_follow_takes_the_slow_motion_and_fixed_holds_still(robot):
+    path = sway_path(amplitude_m=1.0, freq_hz=0.05, duration_s=20)
+    follow = reachgate.check(robot, path, reachgate.CheckSettings(rail=RailPolicy.FOLLOW))
+    fixed = reachgate.check(robot, path, reachgate.CheckSettings(rail_at_m=2.5))
+    rail_follow, rail_fixed = follow.solution.q[:, 0], fixed.solution.q[:, 0]
+    assert np.ptp(rail_fixed) == 0.0 and rail_fixed[0] == 2.5
+    assert np.ptp(rail_follow) > 1.5  # the 2 m sway mostly goes to the rail
+
+
+def test_slowdown_clears_rate_violations(robot):
+    """Stretching time by the reported factor (plus 1 %) leaves no rate violation (fixed rail)."""
+    fast = sway_path(amplitude_m=0.3, freq_hz=1.2)
+    report = reachgate.check(robot, fast)
+    assert not report.passed and report.slowdown is not None and report.slowdown > 1.0
+    k = report.slowdown * 1.01
+    slow = reachgate.Trajectory.from_arrays(fast.t_s * k, fast.scenario_p_m, fast.scenario_q_wxyz)
+    again = reachgate.check(robot, slow)
+    rate_rows = [
+        v
+        for v in again.violations
+        if v.check in reachgate.checks.RATE_CHECKS and v.severity is reachgate.Severity.VIOLATION
+    ]
+    assert rate_rows == []
+
+
+def test_margins_agree_with_violations(robot):
+    report = reachgate.check(robot, sway_path(amplitude_m=0.3, freq_hz=1.2))
+    for row in report.violations:
+        if row.severity is reachgate.Severity.VIOLATION and row.axis in report.margins:
+            assert report.margins[row.axis][row.check.value] < 0
+
+
+def test_placement_moves_the_path(robot):
+    path = sway_path()
+    moved = reachgate.check(
+        robot, path, reachgate.CheckSettings(placement=reachgate.Placement.parse("0.5,0,0,0,0,0"))
+    )
+    base = reachgate.check(robot, path)
+    assert not np.allclose(moved.solution.q, base.solution.q)
