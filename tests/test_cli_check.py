@@ -5,10 +5,11 @@ from __future__ import annotations
 import json
 
 import pytest
-from conftest import DEMO_CASES, DEMO_ROBOT
 from typer.testing import CliRunner
 
 from reachgate.cli import app
+
+from conftest import DEMO_CASES, DEMO_ROBOT
 
 runner = CliRunner()
 CALM = str(DEMO_CASES / "approach_calm.csv")

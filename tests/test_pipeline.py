@@ -4,11 +4,12 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from conftest import DEMO_ROBOT
 
 import reachgate
 from reachgate.ik import solve_trajectory
 from reachgate.rail import RailPolicy, first_order_lowpass, follow_filter
+
+from conftest import DEMO_ROBOT
 
 
 @pytest.fixture(scope="module")

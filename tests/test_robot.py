@@ -59,7 +59,7 @@ def test_empty_file_is_refused(tmp_path):
 def test_binary_garbage_is_refused(tmp_path):
     path = tmp_path / "arm.toml"
     path.write_bytes(bytes(range(256)) * 4)
-    with pytest.raises(ReachgateError, match="not a text file|not valid TOML"):
+    with pytest.raises(ReachgateError, match=r"not a text file|not valid TOML"):
         load_robot(path)
 
 
