@@ -61,9 +61,23 @@ class PathSolution:
 
 
 def chain_targets(robot: Robot, cell_T_tool: np.ndarray, rail_m: np.ndarray | None) -> np.ndarray:
-    """Flange targets in the chain's base frame, (N, 4, 4) cell TCP poses -> (N, 4, 4)."""
-    cell_T_chain = cell_T_base(robot, rail_m) @ robot.chain.base_T_chain
-    return invert_transform(cell_T_chain) @ cell_T_tool @ invert_transform(robot.flange_T_tool)
+    """Flange targets in the chain's base frame, (N, 4, 4) cell TCP poses -> (N, 4, 4).
+
+    chain_T_flange = B⁻¹ · Tx(-rail) · C⁻¹ · cell_T_tool · tool⁻¹, with C = cell_T_rail and
+    B = carriage_T_base · base_T_chain (without a rail, C is the identity and B the mount).
+    """
+    C_inv = invert_transform(robot.cell_T_rail)
+    B_inv = invert_transform(robot.carriage_T_base @ robot.chain.base_T_chain)
+    tool_inv = invert_transform(robot.flange_T_tool)
+    R, p = cell_T_tool[:, :3, :3], cell_T_tool[:, :3, 3]
+    rail_p = (p + R @ tool_inv[:3, 3]) @ C_inv[:3, :3].T + C_inv[:3, 3]  # flange in rail frame
+    if rail_m is not None:
+        rail_p[:, 0] -= rail_m
+    out = np.empty_like(cell_T_tool)
+    out[:, :3, :3] = (B_inv[:3, :3] @ C_inv[:3, :3]) @ R @ tool_inv[:3, :3]
+    out[:, :3, 3] = rail_p @ B_inv[:3, :3].T + B_inv[:3, 3]
+    out[:, 3] = (0.0, 0.0, 0.0, 1.0)
+    return out
 
 
 def continuous_angles(theta: np.ndarray, reference: np.ndarray) -> np.ndarray:

@@ -17,7 +17,7 @@ from itertools import product
 
 import numpy as np
 
-from reachgate.kinematics import dh_transforms
+from reachgate.kinematics import compose_links
 from reachgate.robot import Chain
 
 #: DH parameters closer than this to the special values count as equal (m or rad).
@@ -104,6 +104,7 @@ class SphericalWristSolver:
         self.flange_to_centre = np.array([a[5], np.sin(alpha[5]) * d[5], np.cos(alpha[5]) * d[5]])
         ca6, sa6 = np.cos(alpha[5]), np.sin(alpha[5])
         self.rx_alpha6_T = np.array([[1, 0, 0], [0, ca6, sa6], [0, -sa6, ca6]])
+        self._links123 = Chain(a[:3], alpha[:3], d[:3], np.zeros(3), np.ones(3, bool), np.eye(4))
         self.inner_radius_m = abs(self.a2 - self.forearm_m)
         self.outer_radius_m = self.a2 + self.forearm_m
 
@@ -112,8 +113,8 @@ class SphericalWristSolver:
     def branch_of(self, theta: np.ndarray) -> Branch:
         """The branch of one configuration of DH angles θ (6,)."""
         t = np.asarray(theta, dtype=float)
-        frames = self._first_three(t[None, :3])
-        wc = self._centre_from_frames(frames)[0]
+        _, _, z3, p3 = self._first_three_columns(t[None, :3])
+        wc = [float(p3[k][0] + self.chain.d_m[3] * z3[k][0]) for k in range(3)]
         along = np.cos(t[0]) * wc[0] + np.sin(t[0]) * wc[1]
         gamma = self.eps * t[2] + self.forearm_angle
         return Branch(
@@ -122,27 +123,27 @@ class SphericalWristSolver:
             wrist=1 if np.sin(t[4]) >= 0 else -1,
         )
 
-    def _first_three(self, theta123: np.ndarray) -> np.ndarray:
-        zero_offsets = Chain(
-            self.chain.a_m[:3],
-            self.chain.alpha_rad[:3],
-            self.chain.d_m[:3],
-            np.zeros(3),
-            np.ones(3, dtype=bool),
-            np.eye(4),
+    def _first_three_columns(self, theta123: np.ndarray):
+        """Frame 3's axes x, y, z and origin p as lists of three (N,) arrays."""
+        one, zero = np.float64(1.0), np.float64(0.0)
+        return compose_links(
+            self._links123,
+            theta123,
+            [one, zero, zero],
+            [zero, one, zero],
+            [zero, zero, one],
+            [zero, zero, zero],
         )
-        A = dh_transforms(zero_offsets, theta123)
-        return A[:, 0] @ A[:, 1] @ A[:, 2]
-
-    def _centre_from_frames(self, T03: np.ndarray) -> np.ndarray:
-        return T03[:, :3, 3] + self.chain.d_m[3] * T03[:, :3, 2]
 
     # -- solving ----------------------------------------------------------------------------
 
     def solve(self, chain_T_flange: np.ndarray, branch: Branch) -> WristSolution:
         """Solve (N, 4, 4) flange poses (in the chain's base frame) on one branch."""
         R06 = chain_T_flange[:, :3, :3]
-        centre = chain_T_flange[:, :3, 3] - np.einsum("nij,j->ni", R06, self.flange_to_centre)
+        f = self.flange_to_centre
+        centre = chain_T_flange[:, :3, 3] - (
+            R06[:, :, 0] * f[0] + R06[:, :, 1] * f[1] + R06[:, :, 2] * f[2]
+        )
         wx, wy, wz = centre[:, 0], centre[:, 1], centre[:, 2]
         h = self.lateral_m
 
@@ -165,17 +166,24 @@ class SphericalWristSolver:
         theta3 = self.eps * (gamma - self.forearm_angle)
 
         # joints 4, 5, 6 from the wrist rotation R' = R03ᵀ R06 Rx(α6)ᵀ
-        T03 = self._first_three(np.stack([theta1, theta2, theta3], axis=1))
-        Rp = np.swapaxes(T03[:, :3, :3], 1, 2) @ R06 @ self.rx_alpha6_T
+        x3, y3, z3, _ = self._first_three_columns(np.stack([theta1, theta2, theta3], axis=1))
+        # columns of M = R06 Rx(α6)ᵀ, then R'[i, j] = (column i of R03) · (column j of M)
+        Rt = self.rx_alpha6_T
+        M = [sum(R06[:, :, k] * Rt[k, j] for k in range(3)) for j in range(3)]  # (N, 3) each
+
+        def dot(column, j):
+            return column[0] * M[j][:, 0] + column[1] * M[j][:, 1] + column[2] * M[j][:, 2]
+
+        r02, r12, r22, r20, r21 = dot(x3, 2), dot(y3, 2), dot(z3, 2), dot(z3, 0), dot(z3, 1)
         w, s4, s5 = branch.wrist, self.s4, self.s5
-        sin5 = w * np.hypot(Rp[:, 0, 2], Rp[:, 1, 2])
-        cos5 = -s4 * s5 * Rp[:, 2, 2]
+        sin5 = w * np.hypot(r02, r12)
+        cos5 = -s4 * s5 * r22
         theta5 = np.arctan2(sin5, cos5)
-        theta4 = np.arctan2(w * s5 * Rp[:, 1, 2], w * s5 * Rp[:, 0, 2])
-        theta6 = np.arctan2(-w * s4 * Rp[:, 2, 1], w * s4 * Rp[:, 2, 0])
+        theta4 = np.arctan2(w * s5 * r12, w * s5 * r02)
+        theta6 = np.arctan2(-w * s4 * r21, w * s4 * r20)
 
         theta = np.stack([theta1, theta2, theta3, theta4, theta5, theta6], axis=1)
-        theta = np.angle(np.exp(1j * theta))  # into (-π, π]
+        theta = np.arctan2(np.sin(theta), np.cos(theta))  # into (-π, π]
         return WristSolution(
             theta=theta,
             reach_excess_m=np.maximum(np.maximum(shell_excess_m, inside_cylinder_m), 0.0),

@@ -74,16 +74,53 @@ def chain_frames(robot: Robot, q: np.ndarray) -> np.ndarray:
     return frames
 
 
+def compose_links(chain: Chain, q_arm: np.ndarray, x, y, z, p):
+    """Walk the DH chain on frame columns held as separate (N,) arrays.
+
+    x, y, z: the current frame's axes, p: its origin, each a list of three (N,) or scalar
+    arrays in some fixed frame. Returns the flange's (x, y, z, p) in that frame. One link is
+    Rz(θ) Tz(d) Tx(a) Rx(α) written out on columns: contiguous (N,) arrays instead of strided
+    (N, 4, 4) products, which is what makes long paths fast.
+    """
+    for i in range(chain.n):
+        qi = q_arm[:, i]
+        if chain.revolute[i]:
+            theta, d = qi + chain.theta_offset_rad[i], chain.d_m[i]
+        else:
+            theta, d = chain.theta_offset_rad[i], qi + chain.d_m[i]
+        ct, st = np.cos(theta), np.sin(theta)
+        ca, sa = float(np.cos(chain.alpha_rad[i])), float(np.sin(chain.alpha_rad[i]))
+        a = float(chain.a_m[i])
+        p = [p[k] + d * z[k] for k in range(3)]
+        x_new = [ct * x[k] + st * y[k] for k in range(3)]
+        y_rot = [ct * y[k] - st * x[k] for k in range(3)]
+        y_new = [ca * y_rot[k] + sa * z[k] for k in range(3)]
+        z_new = [ca * z[k] - sa * y_rot[k] for k in range(3)]
+        p = [p[k] + a * x_new[k] for k in range(3)] if a != 0.0 else p
+        x, y, z = x_new, y_new, z_new
+    return x, y, z, p
+
+
 def forward(robot: Robot, q: np.ndarray) -> np.ndarray:
     """TCP poses in the cell, (N, n_axes) -> (N, 4, 4) cell_T_tool."""
     rail_m, q_arm = split_axes(robot, q)
-    A = dh_transforms(robot.chain, q_arm)
-    T = np.broadcast_to(
-        cell_T_base(robot, rail_m) @ robot.chain.base_T_chain, (q_arm.shape[0], 4, 4)
-    )
-    for i in range(robot.chain.n):
-        T = T @ A[:, i]
-    return T @ robot.flange_T_tool
+    n_samples = q_arm.shape[0]
+    start = robot.cell_T_rail @ robot.carriage_T_base @ robot.chain.base_T_chain
+    x, y, z = ([start[k, c] for k in range(3)] for c in range(3))
+    p = [start[k, 3] for k in range(3)]
+    if rail_m is not None:  # the carriage shifts the base along the rail's +x
+        p = [p[k] + rail_m * robot.cell_T_rail[k, 0] for k in range(3)]
+    x, y, z, p = compose_links(robot.chain, q_arm, x, y, z, p)
+    tool = robot.flange_T_tool
+    T = np.empty((n_samples, 4, 4))
+    for c in range(3):
+        for k in range(3):
+            T[:, k, c] = x[k] * tool[0, c] + y[k] * tool[1, c] + z[k] * tool[2, c]
+    for k in range(3):
+        T[:, k, 3] = p[k] + x[k] * tool[0, 3] + y[k] * tool[1, 3] + z[k] * tool[2, 3]
+    T[:, 3, :3] = 0.0
+    T[:, 3, 3] = 1.0
+    return T
 
 
 def jacobian(robot: Robot, q: np.ndarray) -> np.ndarray:
