@@ -15,7 +15,7 @@ import numpy as np
 
 from reachgate.ik_closed import ALL_BRANCHES, Branch, SphericalWristSolver, is_spherical_wrist
 from reachgate.ik_numeric import solve_path_numeric
-from reachgate.kinematics import cell_T_base, forward
+from reachgate.kinematics import forward
 from reachgate.robot import Robot
 from reachgate.trajectory import Trajectory
 from reachgate.transforms import invert_transform, quat_to_matrix, rotation_angle, transform
