@@ -25,7 +25,7 @@ RESIDUAL_TOL_M = 1e-9
 RESIDUAL_TOL_RAD = 1e-9
 TWO_PI = 2.0 * np.pi
 #: Samples solved at once; bounds the (chunk, 4, 4) work arrays to a few tens of MB.
-CHUNK_SAMPLES = 100_000
+CHUNK_SAMPLES = 16_384
 
 
 class SolverKind(Enum):
