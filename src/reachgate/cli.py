@@ -160,6 +160,50 @@ def robot_command(
     _write_or_print(describe_robot(model), None)
 
 
+# --- perturb ---
+
+
+@app.command("perturb")
+def perturb_command(
+    nominal: Annotated[Path, typer.Argument(help="Nominal trajectory (CSV).")],
+    count: Annotated[int, typer.Option("--count", help="Number of cases to write.")],
+    seed: Annotated[int, typer.Option("--seed", help="Seed; the same seed gives the same files.")],
+    intensity: Annotated[
+        str | None,
+        typer.Option("--intensity", help="light, moderate or severe (default moderate)."),
+    ] = None,
+    sigma: Annotated[
+        float | None, typer.Option("--sigma", help="Vertical gust intensity sigma_w, m/s.")
+    ] = None,
+    airspeed: Annotated[float, typer.Option("--airspeed", help="Airspeed, m/s.")] = 10.0,
+    altitude: Annotated[
+        float, typer.Option("--altitude", help="Altitude, m (at most 304.8).")
+    ] = 10.0,
+    washout: Annotated[
+        float, typer.Option("--washout", help="Station-keeping washout time constant, s.")
+    ] = 0.5,
+    out: Annotated[
+        Path | None, typer.Option("--out", help="Folder for the cases (default NOMINAL_cases).")
+    ] = None,
+) -> None:
+    """Write disturbance cases of a nominal path: Dryden turbulence (MIL-F-8785C), for a scan."""
+    from reachgate.disturb import make_disturbance_cases, write_disturbance_cases
+    from reachgate.trajectory import load_trajectory
+
+    if intensity is None and sigma is None:
+        intensity = "moderate"
+    path = _guarded(lambda: load_trajectory(nominal))
+    cases = _guarded(
+        lambda: make_disturbance_cases(
+            path, count, seed, intensity=intensity, sigma_m_s=sigma,
+            airspeed_m_s=airspeed, altitude_m=altitude, washout_s=washout,
+        )
+    )  # fmt: skip
+    out_dir = out if out is not None else nominal.parent / f"{nominal.stem}_cases"
+    files = _guarded(lambda: write_disturbance_cases(cases, out_dir, nominal.stem))
+    print(f"wrote {len(files)} disturbance cases to {out_dir}: {files[0].name} .. {files[-1].name}")
+
+
 def main() -> None:
     """Console-script entry point."""
     os.environ.setdefault("NO_COLOR", "1")
