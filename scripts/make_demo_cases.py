@@ -65,7 +65,7 @@ def main() -> None:
     t, p, rpy = approach(40.0, seed=1)
     write_case("approach_calm.csv", "calm air, 40 s approach: passes with --rail follow", t, p, rpy,
                extra=np.full(t.size, 8.3))
-    t, p, rpy = approach(40.0, seed=2, gust=1.0)
+    t, p, rpy = approach(40.0, seed=2, gust=0.35)
     write_case("approach_gusty.csv", "gust burst mid-approach: wrist too slow, needs a slow-down",
                t, p, rpy)
     t, p, rpy = approach(40.0, seed=3, lateral_m=2.9)

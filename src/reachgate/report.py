@@ -75,7 +75,72 @@ def advice(report: Report) -> str:
     return text + "."
 
 
-def render_table(report: Report, width: int = 110) -> str:
+#: Interval rows the table shows before it summarises the rest (JSON and CSV keep all).
+TABLE_MAX_ROWS = 40
+
+
+def _rows_to_show(rows, max_rows: int):
+    """The first rows in time order, but always each (check, axis)'s worst violation."""
+    if len(rows) <= max_rows:
+        return list(rows)
+    worst = {}
+    for v in rows:
+        if v.severity is Severity.VIOLATION:
+            key = (v.check, v.axis)
+            if key not in worst or abs(v.worst - v.limit) > abs(
+                worst[key].worst - worst[key].limit
+            ):
+                worst[key] = v
+    keep = set(map(id, worst.values()))
+    for v in rows:
+        if len(keep) >= max_rows:
+            break
+        keep.add(id(v))
+    return [v for v in rows if id(v) in keep]
+
+
+def _group_table(report: Report):
+    """One line per (check, axis): row counts, first start, last end, worst and its limit."""
+    from rich import box
+    from rich.table import Table
+
+    table = Table(box=box.ASCII, pad_edge=False)
+    for title in (
+        "check",
+        "axis",
+        "violation rows",
+        "near rows",
+        "first s",
+        "last s",
+        "worst",
+        "limit",
+        "unit",
+    ):
+        table.add_column(title, justify="left" if title in ("check", "axis", "unit") else "right")
+    groups: dict = {}
+    for v in report.violations:
+        groups.setdefault((v.check.value, v.axis), []).append(v)
+    for (check, axis), rows in groups.items():
+        failing = [v for v in rows if v.severity is Severity.VIOLATION] or rows
+        worst_row = max(failing, key=lambda v: abs(v.worst - v.limit))
+        worst, unit = display(worst_row.worst, worst_row.unit)
+        limit, _ = display(worst_row.limit, worst_row.unit)
+        n_viol = sum(v.severity is Severity.VIOLATION for v in rows)
+        table.add_row(
+            check,
+            axis,
+            str(n_viol),
+            str(len(rows) - n_viol),
+            f"{min(v.start_s for v in rows):.3f}",
+            f"{max(v.end_s for v in rows):.3f}",
+            worst,
+            limit,
+            unit,
+        )
+    return table
+
+
+def render_table(report: Report, width: int = 110, max_rows: int = TABLE_MAX_ROWS) -> str:
     """The colour-free text report: verdict, interval rows, margins, advice, cautions."""
     from rich import box
     from rich.console import Console
@@ -128,7 +193,8 @@ def render_table(report: Report, width: int = 110) -> str:
                 "right" if title in ("from s", "to s", "worst at s", "worst", "limit") else "left"
             )
             rows.add_column(title, justify=justify)
-        for v in report.violations:
+        shown = _rows_to_show(report.violations, max_rows)
+        for v in shown:
             worst, unit = display(v.worst, v.unit)
             limit, _ = display(v.limit, v.unit)
             rows.add_row(
@@ -143,6 +209,12 @@ def render_table(report: Report, width: int = 110) -> str:
                 unit,
             )
         console.print(rows)
+        if len(shown) < len(report.violations):
+            console.print(
+                f"{len(report.violations) - len(shown)} more rows not shown (all rows: "
+                "--format csv or json); every row, grouped by check and axis:"
+            )
+            console.print(_group_table(report))
 
     margins = Table(box=box.ASCII, title=None, pad_edge=False)
     margins.add_column("axis")
