@@ -204,6 +204,69 @@ def perturb_command(
     print(f"wrote {len(files)} disturbance cases to {out_dir}: {files[0].name} .. {files[-1].name}")
 
 
+# --- envelope ---
+
+
+@app.command("envelope")
+def envelope_command(
+    robot: Annotated[Path, typer.Argument(help="Robot description (TOML).")],
+    pose: Annotated[
+        str | None,
+        typer.Option(
+            "--pose", help="Operating TCP pose in the cell: 'x,y,z,roll,pitch,yaw' (m, deg)."
+        ),
+    ] = None,
+    axes: Annotated[
+        str,
+        typer.Option("--axes", help="Directions, any of x,y,z (cell) and roll,pitch,yaw (TCP)."),
+    ] = "x,y,z,roll,pitch,yaw",
+    freq_range: Annotated[
+        str, typer.Option("--freq-range", help="Lowest and highest frequency, 'low,high' in Hz.")
+    ] = "0.1,10",
+    freqs: Annotated[int, typer.Option("--freqs", help="Number of log-spaced frequencies.")] = 13,
+    rail: RailOption = RailMode.fixed,
+    fmt: Annotated[
+        OutputFormat, typer.Option("--format", help="Envelope format.")
+    ] = OutputFormat.table,
+    out: Annotated[Path | None, typer.Option("--out", help="Write the envelope here.")] = None,
+    plot: Annotated[
+        Path | None, typer.Option("--plot", help="Write a log-log picture of the envelope.")
+    ] = None,
+) -> None:
+    """Largest sinusoid amplitude the arm can follow around a pose, per direction and frequency."""
+    from reachgate.envelope import (
+        envelope,
+        frequencies_from_range,
+        parse_directions,
+        parse_pose,
+        render_envelope,
+    )
+    from reachgate.rail import RailPolicy
+    from reachgate.robot import load_robot
+
+    directions = _guarded(lambda: parse_directions(axes))
+    frequencies = _guarded(lambda: frequencies_from_range(freq_range, freqs))
+    cell_T_pose = None if pose is None else _guarded(lambda: parse_pose(pose))
+    if plot is not None and plot.suffix.lower() != ".png":
+        _fail_bad_input(f"--plot: {plot}: the picture is written as PNG, name it *.png")
+    model = _guarded(lambda: load_robot(robot))
+    result = _guarded(
+        lambda: envelope(
+            model,
+            cell_T_operating=cell_T_pose,
+            directions=directions,
+            frequencies_hz=frequencies,
+            rail=RailPolicy(rail.value),
+        )
+    )
+    _write_or_print(render_envelope(result, fmt.value), out)
+    if plot is not None:
+        from reachgate.plot import plot_envelope
+
+        _guarded(lambda: plot_envelope(result, plot))
+    raise typer.Exit(EXIT_PASS)
+
+
 def main() -> None:
     """Console-script entry point."""
     os.environ.setdefault("NO_COLOR", "1")
