@@ -139,7 +139,10 @@ def _untrusted(mask: np.ndarray) -> np.ndarray:
     if not mask.any():
         return mask
     kernel = np.ones(2 * UNTRUSTED_NEIGHBOURS + 1)
-    return np.convolve(mask.astype(float), kernel, mode="same") > 0
+    # mode="full" then the centred slice: mode="same" returns max(N, kernel) samples, which
+    # broke paths shorter than the kernel; for longer paths the result is the same.
+    grown = np.convolve(mask.astype(float), kernel, mode="full")
+    return grown[UNTRUSTED_NEIGHBOURS : UNTRUSTED_NEIGHBOURS + mask.size] > 0
 
 
 def check(robot: Robot, trajectory: Trajectory, settings: CheckSettings | None = None) -> Report:
