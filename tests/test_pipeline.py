@@ -104,3 +104,18 @@ def test_placement_moves_the_path(robot):
     )
     base = reachgate.check(robot, path)
     assert not np.allclose(moved.solution.q, base.solution.q)
+
+
+def test_rate_checks_in_blocks_equal_one_pass(robot, monkeypatch):
+    import importlib
+
+    check_module = importlib.import_module("reachgate.check")  # the module, not the function
+
+    path = sway_path(amplitude_m=0.3, freq_hz=1.2)
+    monkeypatch.setattr(check_module, "RATE_BLOCK_SAMPLES", 10**9)
+    whole = reachgate.check(robot, path)
+    monkeypatch.setattr(check_module, "RATE_BLOCK_SAMPLES", 101)
+    blocks = reachgate.check(robot, path)
+    assert whole.violations and blocks.violations == whole.violations
+    assert blocks.margins == whole.margins
+    assert blocks.slowdown == whole.slowdown

@@ -14,8 +14,16 @@ from enum import Enum
 import numpy as np
 
 from reachgate import __version__
-from reachgate.checks import RATE_CHECKS, Check, Severity, Violation, intervals, sort_rows
-from reachgate.derivatives import time_derivatives
+from reachgate.checks import (
+    RATE_CHECKS,
+    Check,
+    IntervalStream,
+    Severity,
+    Violation,
+    intervals,
+    sort_rows,
+)
+from reachgate.derivatives import WINDOW_SAMPLES, time_derivatives
 from reachgate.errors import ReachgateError
 from reachgate.ik import PathSolution, solve_trajectory
 from reachgate.kinematics import arm_manipulability
@@ -28,6 +36,11 @@ from reachgate.transforms import transform_from_xyz_rpy
 DEFAULT_LAG_TOL_M = 0.001
 #: A singularity measure below this multiple of its floor gives a `near` row.
 SINGULARITY_NEAR_FACTOR = 2.0
+#: Samples per block of the rate checks (bounds the (block, n_axes) derivative arrays).
+RATE_BLOCK_SAMPLES = 65_536
+#: Extra samples on each side of a block, so every local fit sees the same neighbours as in
+#: one pass over the whole path.
+RATE_HALO_SAMPLES = WINDOW_SAMPLES
 #: Samples on each side of an unreachable one whose derivatives are not trusted.
 UNTRUSTED_NEIGHBOURS = 4
 
@@ -158,54 +171,29 @@ def check(robot: Robot, trajectory: Trajectory, settings: CheckSettings | None =
     q = solution.q
     unreachable = solution.reach_excess_m > 0
     trusted = ~_untrusted(unreachable)
-    rates = time_derivatives(t, q)
     thresholds = robot.thresholds
-    rows: list[Violation] = []
-    margins: dict[str, dict[str, float]] = {}
-    worst_ratio = {Check.SPEED: 0.0, Check.ACCEL: 0.0, Check.JERK: 0.0}
+    rows, margins, worst_ratio = _rate_rows(robot, t, q, trusted)
 
     for i, axis in enumerate(robot.axes):
-        unit = "rad" if axis.is_revolute else "m"
         qi = q[:, i]
         mid = 0.5 * (axis.lower + axis.upper)
-        half = 0.5 * (axis.upper - axis.lower)
         excess = np.maximum(qi - axis.upper, axis.lower - qi)
         band = thresholds.position_margin_rad if axis.is_revolute else thresholds.position_margin_m
-        excess_seen = np.where(unreachable, -np.inf, excess)
         rows += intervals(
             t,
-            excess_seen,
+            np.where(unreachable, -np.inf, excess),
             band,
             check=Check.POSITION,
             axis=axis.name,
             worst_value=qi,
             limit_value=np.where(qi >= mid, axis.upper, axis.lower),
-            unit=unit,
+            unit="rad" if axis.is_revolute else "m",
         )
-        axis_margins = {"position": float(np.min(np.where(unreachable, np.inf, -excess)) / half)}
-        limits = [
-            (Check.SPEED, "speed", rates.velocity[:, i], axis.vmax_per_s, f"{unit}/s"),
-            (Check.ACCEL, "accel", rates.acceleration[:, i], axis.amax_per_s2, f"{unit}/s^2"),
-            (Check.JERK, "jerk", rates.jerk[:, i], axis.jmax_per_s3, f"{unit}/s^3"),
-        ]
-        for kind, key, values, limit, rate_unit in limits:
-            if limit is None:
-                continue
-            magnitude = np.where(trusted, np.abs(values), 0.0)
-            rows += intervals(
-                t,
-                magnitude - limit,
-                thresholds.rate_margin_fraction * limit,
-                check=kind,
-                axis=axis.name,
-                worst_value=magnitude,
-                limit_value=limit,
-                unit=rate_unit,
-            )
-            ratio = float(np.max(magnitude) / limit)
-            axis_margins[key] = 1.0 - ratio
-            worst_ratio[kind] = max(worst_ratio[kind], ratio)
-        margins[axis.name] = axis_margins
+        # unreachable samples have no meaningful joint values; with none reachable, no margin
+        seen = excess[~unreachable]
+        half_range = 0.5 * (axis.upper - axis.lower)
+        position = float(-np.max(seen) / half_range) if seen.size else float("nan")
+        margins[axis.name] = {"position": position, **margins[axis.name]}
 
     rows += _singularity_rows(robot, t, solution, trusted)
     rows += intervals(
@@ -268,6 +256,61 @@ def check(robot: Robot, trajectory: Trajectory, settings: CheckSettings | None =
         t_s=t,
         solution=solution,
     )
+
+
+def _rate_rows(robot: Robot, t: np.ndarray, q: np.ndarray, trusted: np.ndarray):
+    """Speed, accel and jerk rows, rate margins and worst limit ratios for every axis.
+
+    q: (N, n_axes). Works block by block (derivatives with a halo of samples on each side, so
+    each block's values equal one pass over the whole path) to keep memory bounded on long
+    cases. Returns (rows, {axis: {"speed": m, "accel": m, "jerk": m}}, {Check: worst ratio}).
+    """
+    n = t.size
+    rate_margin = robot.thresholds.rate_margin_fraction
+    streams, peaks = {}, {}
+    for axis in robot.axes:
+        unit = "rad" if axis.is_revolute else "m"
+        for kind, limit, suffix in (
+            (Check.SPEED, axis.vmax_per_s, "/s"),
+            (Check.ACCEL, axis.amax_per_s2, "/s^2"),
+            (Check.JERK, axis.jmax_per_s3, "/s^3"),
+        ):
+            if limit is not None:
+                streams[axis.name, kind] = (
+                    IntervalStream(
+                        rate_margin * limit, check=kind, axis=axis.name, unit=unit + suffix
+                    ),
+                    limit,
+                )
+                peaks[axis.name, kind] = 0.0
+    for first in range(0, n, RATE_BLOCK_SAMPLES):
+        last = min(first + RATE_BLOCK_SAMPLES, n)
+        lo, hi = max(first - RATE_HALO_SAMPLES, 0), min(last + RATE_HALO_SAMPLES, n)
+        rates = time_derivatives(t[lo:hi], q[lo:hi])
+        inner = slice(first - lo, last - lo)
+        ok = trusted[first:last]
+        by_kind = {
+            Check.SPEED: rates.velocity,
+            Check.ACCEL: rates.acceleration,
+            Check.JERK: rates.jerk,
+        }
+        for i, axis in enumerate(robot.axes):
+            for kind, values in by_kind.items():
+                if (axis.name, kind) not in streams:
+                    continue
+                stream, limit = streams[axis.name, kind]
+                magnitude = np.where(ok, np.abs(values[inner, i]), 0.0)
+                stream.feed(t[first:last], magnitude - limit, magnitude, limit)
+                peaks[axis.name, kind] = max(peaks[axis.name, kind], float(np.max(magnitude)))
+    rows: list[Violation] = []
+    margins: dict[str, dict[str, float]] = {axis.name: {} for axis in robot.axes}
+    worst_ratio = {Check.SPEED: 0.0, Check.ACCEL: 0.0, Check.JERK: 0.0}
+    for (name, kind), (stream, limit) in streams.items():
+        rows += stream.finish()
+        ratio = peaks[name, kind] / limit
+        margins[name][kind.value] = 1.0 - ratio
+        worst_ratio[kind] = max(worst_ratio[kind], ratio)
+    return rows, margins, worst_ratio
 
 
 def _singularity_rows(

@@ -90,6 +90,104 @@ def _ranges(starts: np.ndarray, lengths: np.ndarray) -> np.ndarray:
     return np.arange(total) + offsets
 
 
+@dataclass
+class _Run:
+    """A run of samples still being read: its start, end and worst sample so far."""
+
+    start_s: float
+    end_s: float
+    worst_excess: float
+    worst_s: float
+    worst: float
+    limit: float
+    crossed: bool = False
+
+
+class IntervalStream:
+    """Interval rows of one check on one axis, fed in consecutive chunks of samples.
+
+    Gives exactly the rows of one call on the whole arrays: a run that reaches the end of a
+    chunk stays open and joins the run that starts the next chunk. Lets a long case be
+    checked block by block with bounded memory.
+    """
+
+    def __init__(self, band: float, *, check: Check, axis: str, unit: str) -> None:
+        self.band, self.check, self.axis, self.unit = band, check, axis, unit
+        self.rows: list[Violation] = []
+        self._open: dict[Severity, _Run | None] = {Severity.VIOLATION: None, Severity.NEAR: None}
+
+    def feed(self, t_s, excess, worst_value, limit_value) -> None:
+        """Add one chunk: t_s, excess, worst_value (n,) and limit_value scalar or (n,)."""
+        excess = np.asarray(excess, dtype=float)
+        limit_value = np.broadcast_to(np.asarray(limit_value, dtype=float), excess.shape)
+        over = excess > 0
+        self._feed_runs(Severity.VIOLATION, over, None, t_s, excess, worst_value, limit_value)
+        if self.band > 0:
+            near = excess > -self.band
+            self._feed_runs(Severity.NEAR, near, over, t_s, excess, worst_value, limit_value)
+
+    def _feed_runs(self, severity, mask, over, t_s, excess, worst_value, limit_value):
+        starts, stops = _runs(mask)
+        pending = self._open[severity]
+        if pending is not None and (starts.size == 0 or starts[0] != 0):
+            self._close(severity, pending)
+            pending = None
+        if starts.size == 0:
+            self._open[severity] = None
+            return
+        best = _argmax_per_run(excess, starts, stops)
+        # reduceat runs to the next start, but the samples between near runs are never over
+        crossed = np.zeros(starts.size, bool) if over is None else np.maximum.reduceat(over, starts)
+        runs = [
+            _Run(
+                float(t_s[i0]),
+                float(t_s[i1 - 1]),
+                float(excess[iw]),
+                float(t_s[iw]),
+                float(worst_value[iw]),
+                float(limit_value[iw]),
+                bool(c),
+            )
+            for i0, i1, iw, c in zip(starts, stops, best, crossed, strict=True)
+        ]
+        if pending is not None:  # the chunk opens inside the run left open by the last one
+            first = runs[0]
+            if first.worst_excess > pending.worst_excess:
+                pending.worst_excess, pending.worst_s = first.worst_excess, first.worst_s
+                pending.worst, pending.limit = first.worst, first.limit
+            pending.end_s, pending.crossed = first.end_s, pending.crossed or first.crossed
+            runs[0] = pending
+        still_open = stops[-1] == mask.size
+        for run in runs[:-1] if still_open else runs:
+            self._close(severity, run)
+        self._open[severity] = runs[-1] if still_open else None
+
+    def _close(self, severity: Severity, run: _Run) -> None:
+        if severity is Severity.NEAR and run.crossed:
+            return  # a near run that holds a violation is reported by its violation rows
+        self.rows.append(
+            Violation(
+                self.check,
+                self.axis,
+                severity,
+                run.start_s,
+                run.end_s,
+                run.worst_s,
+                run.worst,
+                run.limit,
+                self.unit,
+            )
+        )
+
+    def finish(self) -> list[Violation]:
+        """Close the runs still open and return every row."""
+        for severity, run in self._open.items():
+            if run is not None:
+                self._close(severity, run)
+            self._open[severity] = None
+        return self.rows
+
+
 def intervals(
     t_s: np.ndarray,
     excess: np.ndarray,
@@ -101,44 +199,16 @@ def intervals(
     limit_value: np.ndarray | float,
     unit: str,
 ) -> list[Violation]:
-    """Violation and near rows for one axis of one check.
+    """Violation and near rows for one axis of one check, on whole arrays.
 
     t_s: (N,) times; excess: (N,) amount beyond the limit (> 0 is a violation);
     band: width of the near band below the limit, in the units of excess (0 = no near rows);
     worst_value: (N,) what a row reports as its worst (e.g. |speed|); limit_value: the limit
     it is compared with, scalar or (N,) (e.g. the range end nearer to each sample).
     """
-    excess = np.asarray(excess, dtype=float)
-    limit_value = np.broadcast_to(np.asarray(limit_value, dtype=float), excess.shape)
-    over = excess > 0
-    rows: list[Violation] = []
-
-    def emit(starts, stops, severity):
-        for i0, i1, iw in zip(starts, stops, _argmax_per_run(excess, starts, stops), strict=True):
-            rows.append(
-                Violation(
-                    check=check,
-                    axis=axis,
-                    severity=severity,
-                    start_s=float(t_s[i0]),
-                    end_s=float(t_s[i1 - 1]),
-                    worst_s=float(t_s[iw]),
-                    worst=float(worst_value[iw]),
-                    limit=float(limit_value[iw]),
-                    unit=unit,
-                )
-            )
-
-    if over.any():
-        emit(*_runs(over), Severity.VIOLATION)
-    if band > 0:
-        near_starts, near_stops = _runs(excess > -band)
-        if near_starts.size:
-            # a near run that holds any violation sample is reported by its violation rows
-            crossed = np.maximum.reduceat(over, near_starts)
-            keep = ~crossed
-            emit(near_starts[keep], near_stops[keep], Severity.NEAR)
-    return rows
+    stream = IntervalStream(band, check=check, axis=axis, unit=unit)
+    stream.feed(t_s, excess, worst_value, limit_value)
+    return stream.finish()
 
 
 def margin_fraction(used_fraction: np.ndarray) -> float:
