@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import itertools
+
 import numpy as np
 import pytest
 
@@ -11,7 +13,7 @@ from reachgate.checks import Check, IntervalStream, Severity, intervals, sort_ro
 def rows_of(t, excess, band, chunks=None):
     stream = IntervalStream(band, check=Check.SPEED, axis="j1", unit="rad/s")
     bounds = [0, *(chunks or []), t.size]
-    for a, b in zip(bounds[:-1], bounds[1:], strict=True):
+    for a, b in itertools.pairwise(bounds):
         stream.feed(t[a:b], excess[a:b], excess[a:b] + 1.0, 1.0)
     return sort_rows(stream.finish())
 
