@@ -15,7 +15,7 @@ import numpy as np
 
 from reachgate.kinematics import chain_pose_jacobian
 from reachgate.robot import Chain
-from reachgate.transforms import rotation_log
+from reachgate.transforms import rotation_angle, rotation_log
 
 #: A sample counts as solved when its position error is below this (m) ...
 POSITION_TOL_M = 1e-11
@@ -28,6 +28,9 @@ MAX_ITERATIONS_SEQUENTIAL = 200
 MAX_ITERATIONS_BATCH = 30
 #: Samples between two solves of the sequential (coarsest) pass.
 COARSE_STRIDE = 64
+#: Largest target motion between two samples of the sequential pass (rad, m).
+COARSE_STEP_RAD = 0.2
+COARSE_STEP_M = 0.05
 
 
 @dataclass(frozen=True)
@@ -86,6 +89,24 @@ def refine(
     return q, error
 
 
+def coarse_samples(chain_T_target: np.ndarray) -> np.ndarray:
+    """Indices of the samples solved in sequence: every COARSE_STRIDE-th, and more where the
+    target moves fast, so that no two neighbours differ by more than COARSE_STEP_RAD in
+    orientation or COARSE_STEP_M in position (else a seed interpolated between them may land
+    a whole turn away). (N, 4, 4) -> (M,) sorted, with the first and the last sample.
+    """
+    n_samples = chain_T_target.shape[0]
+    R = chain_T_target[:, :3, :3]
+    turn = rotation_angle(np.swapaxes(R[:-1], 1, 2) @ R[1:])
+    shift = np.linalg.norm(np.diff(chain_T_target[:, :3, 3], axis=0), axis=1)
+    travel = np.concatenate(
+        [[0.0], np.cumsum(np.maximum(turn / COARSE_STEP_RAD, shift / COARSE_STEP_M))]
+    )
+    fast = np.flatnonzero(np.diff(np.floor(travel)) > 0) + 1
+    grid = np.arange(0, n_samples, COARSE_STRIDE)
+    return np.unique(np.concatenate([grid, fast, [n_samples - 1]]))
+
+
 def solve_path_numeric(
     chain: Chain, chain_T_target: np.ndarray, q_home: np.ndarray
 ) -> NumericSolution:
@@ -98,7 +119,7 @@ def solve_path_numeric(
     error = np.empty((n_samples, 6))
     solved = np.zeros(n_samples, dtype=bool)
 
-    coarse = np.unique(np.append(np.arange(0, n_samples, COARSE_STRIDE), n_samples - 1))
+    coarse = coarse_samples(chain_T_target)
     previous = np.asarray(q_home, dtype=float)
     for index in coarse:
         qi, ei = refine(
