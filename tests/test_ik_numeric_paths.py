@@ -3,11 +3,12 @@
 from __future__ import annotations
 
 import numpy as np
-from conftest import REPO
 
 import reachgate
 from reachgate.kinematics import forward
 from reachgate.transforms import matrix_to_quat, rpy_to_matrix
+
+from conftest import REPO
 
 
 def test_fast_roll_on_the_gantry_follows_without_winding():

@@ -16,12 +16,12 @@ try:
 except PackageNotFoundError:  # running from a source tree without installing
     __version__ = "0.0.0+source"
 
-from reachgate.check import CheckSettings, Placement, Report, Verdict, check  # noqa: E402
-from reachgate.checks import Check, Severity, Violation  # noqa: E402
-from reachgate.errors import ReachgateError  # noqa: E402
-from reachgate.rail import RailPolicy  # noqa: E402
-from reachgate.robot import Robot, load_robot, robot_from_dict  # noqa: E402
-from reachgate.trajectory import Trajectory, load_trajectory  # noqa: E402
+from reachgate.check import CheckSettings, Placement, Report, Verdict, check
+from reachgate.checks import Check, Severity, Violation
+from reachgate.errors import ReachgateError
+from reachgate.rail import RailPolicy
+from reachgate.robot import Robot, load_robot, robot_from_dict
+from reachgate.trajectory import Trajectory, load_trajectory
 
 __all__ = [
     "Check",
