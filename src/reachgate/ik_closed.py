@@ -47,7 +47,7 @@ ALL_BRANCHES = tuple(Branch(s, e, w) for s, e, w in product((1, -1), repeat=3))
 class WristSolution:
     """Closed-form solutions on one branch for N targets.
 
-    theta: (N, 6) DH joint angles θ (not yet minus offsets), in (-π, π].
+    theta: (N, 6) DH joint angles θ (not yet minus offsets), within a turn of (-π, π].
     reach_excess_m: (N,) how far the wrist centre lies outside the reachable shell (0 inside).
     shoulder_m: (N,) distance of the wrist centre from the shoulder singular surface.
     elbow_rad: (N,) elbow angle from stretched or folded (0 = singular).
@@ -104,6 +104,9 @@ class SphericalWristSolver:
         self.flange_to_centre = np.array([a[5], np.sin(alpha[5]) * d[5], np.cos(alpha[5]) * d[5]])
         ca6, sa6 = np.cos(alpha[5]), np.sin(alpha[5])
         self.rx_alpha6_T = np.array([[1, 0, 0], [0, ca6, sa6], [0, -sa6, ca6]])
+        self._ca1, self._sa1 = float(np.cos(alpha[0])), float(np.sin(alpha[0]))
+        beta = alpha[1] + alpha[2]
+        self._cb, self._sb = float(np.cos(beta)), float(np.sin(beta))
         self._links123 = Chain(a[:3], alpha[:3], d[:3], np.zeros(3), np.ones(3, bool), np.eye(4))
         self.inner_radius_m = abs(self.a2 - self.forearm_m)
         self.outer_radius_m = self.a2 + self.forearm_m
@@ -133,6 +136,23 @@ class SphericalWristSolver:
             [zero, one, zero],
             [zero, zero, one],
             [zero, zero, zero],
+        )
+
+    def _frame3_axes(self, theta1: np.ndarray, phi: np.ndarray):
+        """Frame 3's axes x, y, z (each three (N,) arrays) in the chain frame.
+
+        With joints 2 and 3 parallel, R03 = Rz(θ1) Rx(α1) Rz(φ) Rx(β) where φ = θ2 + ε θ3 and
+        β = α2 + α3 (Rx(π) Rz(θ) = Rz(-θ) Rx(π)), written out: four trig calls, not six.
+        """
+        c1, s1, cp, sp = np.cos(theta1), np.sin(theta1), np.cos(phi), np.sin(phi)
+        ca, sa, cb, sb = self._ca1, self._sa1, self._cb, self._sb
+        columns = (
+            (cp, ca * sp, sa * sp),
+            (-cb * sp, cb * ca * cp - sb * sa, cb * sa * cp + sb * ca),
+            (sb * sp, -sb * ca * cp - cb * sa, -sb * sa * cp + cb * ca),
+        )
+        return tuple(
+            [c1 * v0 - s1 * v1, s1 * v0 + c1 * v1, v2 * np.ones_like(c1)] for v0, v1, v2 in columns
         )
 
     # -- solving ----------------------------------------------------------------------------
@@ -166,7 +186,7 @@ class SphericalWristSolver:
         theta3 = self.eps * (gamma - self.forearm_angle)
 
         # joints 4, 5, 6 from the wrist rotation R' = R03ᵀ R06 Rx(α6)ᵀ
-        x3, y3, z3, _ = self._first_three_columns(np.stack([theta1, theta2, theta3], axis=1))
+        x3, y3, z3 = self._frame3_axes(theta1, theta2 + self.eps * theta3)
         # columns of M = R06 Rx(α6)ᵀ, then R'[i, j] = (column i of R03) · (column j of M)
         Rt = self.rx_alpha6_T
         M = [sum(R06[:, :, k] * Rt[k, j] for k in range(3)) for j in range(3)]  # (N, 3) each
@@ -182,8 +202,8 @@ class SphericalWristSolver:
         theta4 = np.arctan2(w * s5 * r12, w * s5 * r02)
         theta6 = np.arctan2(-w * s4 * r21, w * s4 * r20)
 
+        # θ1-θ3 may lie a turn outside (-π, π]: every user unwraps or takes them modulo 2π
         theta = np.stack([theta1, theta2, theta3, theta4, theta5, theta6], axis=1)
-        theta = np.arctan2(np.sin(theta), np.cos(theta))  # into (-π, π]
         return WristSolution(
             theta=theta,
             reach_excess_m=np.maximum(np.maximum(shell_excess_m, inside_cylinder_m), 0.0),
