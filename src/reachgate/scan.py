@@ -1,0 +1,715 @@
+"""Many cases in one go (DESIGN §5 `scan`): discovery, workers, resume, ranked summary.
+
+Workers (local processes, or the workers of an existing Dask scheduler) check one case each
+and hand back a plain dict; only the calling process writes the results store (store.py).
+A case whose content, robot file and settings match its stored row is not checked again.
+"""
+
+from __future__ import annotations
+
+import csv
+import glob
+import hashlib
+import io
+import json
+import math
+import multiprocessing
+import os
+import signal
+import socket
+import threading
+import time
+import traceback
+from collections.abc import Callable, Iterable, Iterator, Sequence
+from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
+from concurrent.futures.process import BrokenProcessPool
+from contextlib import closing
+from dataclasses import dataclass
+from datetime import UTC, datetime
+from pathlib import Path
+
+from reachgate import __version__
+from reachgate.check import CheckSettings, check
+from reachgate.checks import Check, Severity
+from reachgate.errors import ReachgateError
+from reachgate.rail import rail_positions
+from reachgate.robot import Robot, load_robot, robot_from_dict
+from reachgate.store import (
+    CaseResult,
+    CaseVerdict,
+    ScanSummary,
+    Store,
+    batch_counts,
+    load_summary,
+)
+from reachgate.trajectory import load_trajectory
+
+__all__ = [
+    "DEFAULT_STORE_NAME",
+    "CaseResult",
+    "CaseVerdict",
+    "ScanProgress",
+    "ScanSummary",
+    "check_case",
+    "discover_cases",
+    "load_summary",
+    "render_summary",
+    "scan",
+]
+
+#: Store file name used when --store is not given (in the cases' common folder).
+DEFAULT_STORE_NAME = "reachgate_scan.sqlite"
+#: What a folder contributes: every file with this suffix inside it, recursively.
+CASE_SUFFIX = ".csv"
+#: Cases handed out per worker ahead of time: keeps workers busy, and keeps the work lost
+#: to an interruption small.
+IN_FLIGHT_PER_WORKER = 2
+#: A case whose worker process died is tried once more in a fresh pool before it is an error.
+WORKER_DEATH_RETRIES = 1
+#: How often a local worker checks that the scan process is still there, s.
+PARENT_WATCH_PERIOD_S = 1.0
+#: Connection timeout for --cluster, s.
+CLUSTER_CONNECT_TIMEOUT_S = 20.0
+
+
+@dataclass(frozen=True)
+class ScanProgress:
+    """Where a scan is: cases stored by this run (done of total), failing so far, resumed."""
+
+    done: int
+    total: int
+    failing: int
+    resumed: int
+    last_case: str | None = None
+
+
+# -- discovery -----------------------------------------------------------------------------
+
+
+def discover_cases(patterns: Iterable[str | Path]) -> tuple[Path, ...]:
+    """Case files from files, folders (every *.csv inside, recursively) and glob patterns.
+
+    Order: as given, folders and globs sorted; duplicates dropped. Raises ReachgateError for a
+    plain path that does not exist, or when nothing is found.
+    """
+    found: dict[Path, None] = {}
+    patterns = [str(p) for p in patterns]
+
+    def add(path: Path) -> None:
+        if path.is_dir():
+            for inner in sorted(path.rglob(f"*{CASE_SUFFIX}")):
+                if inner.is_file():
+                    found.setdefault(inner.resolve(), None)
+        elif path.is_file():
+            found.setdefault(path.resolve(), None)
+
+    for pattern in patterns:
+        if glob.has_magic(pattern):
+            for match in sorted(glob.glob(pattern, recursive=True)):
+                add(Path(match))
+        elif Path(pattern).exists():
+            add(Path(pattern))
+        else:
+            raise ReachgateError(f"{pattern}: no such case file or folder")
+    if not found:
+        shown = ", ".join(patterns) if patterns else "(none given)"
+        raise ReachgateError(f"no case found in {shown} (folders give their *{CASE_SUFFIX} files)")
+    return tuple(found)
+
+
+def default_store_path(cases: Sequence[Path]) -> Path:
+    """reachgate_scan.sqlite in the cases' common folder."""
+    folders = [str(Path(c).resolve().parent) for c in cases]
+    return Path(os.path.commonpath(folders)) / DEFAULT_STORE_NAME
+
+
+def case_name(case_path: Path, store_path: Path) -> str:
+    """How a case is known in a store: its path relative to the store's folder, else absolute."""
+    path = Path(case_path).resolve()
+    try:
+        return path.relative_to(Path(store_path).resolve().parent).as_posix()
+    except ValueError:
+        return path.as_posix()
+
+
+def file_sha256(path: str | Path) -> str:
+    try:
+        return hashlib.sha256(Path(path).read_bytes()).hexdigest()
+    except OSError as error:
+        raise ReachgateError(f"{path}: cannot read ({error.strerror or error})") from None
+
+
+# -- the worker side -----------------------------------------------------------------------
+
+_ROBOTS: dict[bytes, Robot] = {}
+
+
+def _robot_for(robot_raw: bytes, robot_label: str) -> Robot:
+    """The robot, parsed once per worker process (the parent validated the file already)."""
+    robot = _ROBOTS.get(robot_raw)
+    if robot is None:
+        import tomllib
+
+        robot = robot_from_dict(tomllib.loads(robot_raw.decode("utf-8")), source=robot_label)
+        _ROBOTS[robot_raw] = robot
+    return robot
+
+
+def _excess_fraction(robot: Robot, row) -> float | None:
+    """How far a violation row is beyond its limit, as a fraction of the limit's scale.
+
+    position: beyond the range end / half the range (the scale of report margins);
+    speed, accel, jerk, lag: worst / limit - 1; singularity: (floor - measure) / floor;
+    reach, branch: None (no limit to scale by). Negative for near rows.
+    """
+    kind = row.check
+    if kind is Check.POSITION:
+        axis = next(a for a in robot.axes if a.name == row.axis)
+        at_upper = abs(row.limit - axis.upper) <= abs(row.limit - axis.lower)
+        beyond = row.worst - row.limit if at_upper else row.limit - row.worst
+        return beyond / (0.5 * (axis.upper - axis.lower))
+    if kind in (Check.SPEED, Check.ACCEL, Check.JERK, Check.LAG):
+        return row.worst / row.limit - 1.0
+    if kind is Check.SINGULARITY:
+        return (row.limit - row.worst) / row.limit
+    return None
+
+
+def check_case(case_path: str, settings: CheckSettings, robot_raw: bytes, robot_label: str) -> dict:
+    """Check one case file; never raises for a bad or crashing case. -> plain dict.
+
+    Keys: case_path, case_sha256, verdict ("pass" | "fail" | "error"), error, report
+    (Report.as_dict() or None), excess_fractions (one per violation row), elapsed_s, worker.
+    """
+    started = time.perf_counter()
+    out: dict = {"case_path": case_path, "case_sha256": None, "verdict": "error"}
+    out.update(error=None, report=None, excess_fractions=None)
+    try:
+        out["case_sha256"] = file_sha256(case_path)
+        robot = _robot_for(robot_raw, robot_label)
+        report = check(robot, load_trajectory(case_path), settings)
+        out["report"] = report.as_dict()
+        out["verdict"] = report.verdict.value
+        out["excess_fractions"] = [_excess_fraction(robot, v) for v in report.violations]
+    except ReachgateError as error:
+        text = str(error)
+        out["error"] = text if Path(case_path).name in text else f"{case_path}: {text}"
+    except Exception as error:  # a crash in one case must not stop the batch
+        where = traceback.extract_tb(error.__traceback__)[-1]
+        out["error"] = (
+            f"{case_path}: crashed with {type(error).__name__}: {error} "
+            f"(at {Path(where.filename).name}:{where.lineno})"
+        )
+    out["elapsed_s"] = time.perf_counter() - started
+    out["worker"] = f"{socket.gethostname()}:{os.getpid()}"
+    return out
+
+
+def _watch_parent(parent_pid: int) -> None:
+    while os.getppid() == parent_pid:
+        time.sleep(PARENT_WATCH_PERIOD_S)
+    os._exit(1)  # the scan process is gone (kill -9): do not linger as an orphan
+
+
+def _local_worker_init(robot_raw: bytes, robot_label: str, parent_pid: int) -> None:
+    signal.signal(signal.SIGINT, signal.SIG_IGN)  # Ctrl-C is the scan process's to handle
+    threading.Thread(target=_watch_parent, args=(parent_pid,), daemon=True).start()
+    _robot_for(robot_raw, robot_label)
+
+
+# -- engines: yield one result dict per case -----------------------------------------------
+
+
+def _error_result(case_path: str, message: str) -> dict:
+    return {
+        "case_path": case_path,
+        "case_sha256": None,
+        "verdict": "error",
+        "error": f"{case_path}: {message}",
+        "report": None,
+        "excess_fractions": None,
+        "elapsed_s": 0.0,
+        "worker": "",
+    }
+
+
+def _may_submit(todo: list, running: dict, window: int, broken: bool) -> bool:
+    """A case that was in flight when a worker died (a suspect) runs alone, so that a case
+    that kills its worker cannot take the cases beside it down with it."""
+    if not todo or broken or any(deaths for _, deaths in running.values()):
+        return False
+    if todo[-1][1] and running:
+        return False
+    return len(running) < window
+
+
+def _run_local(
+    paths: list[str],
+    settings: CheckSettings,
+    robot_raw: bytes,
+    label: str,
+    workers: int,
+    task: Callable[..., dict] = check_case,
+) -> Iterator[dict]:
+    """Local worker processes (spawned fresh, the robot parsed once in each).
+
+    task: the per-case function (check_case; tests swap in one that kills its worker).
+    """
+    todo = [(p, 0) for p in reversed(paths)]  # stack of (case path, deaths so far)
+    context = multiprocessing.get_context("spawn")
+    window = IN_FLIGHT_PER_WORKER * workers
+    while todo:
+        pool = ProcessPoolExecutor(
+            max_workers=workers,
+            mp_context=context,
+            initializer=_local_worker_init,
+            initargs=(robot_raw, label, os.getpid()),
+        )
+        running: dict = {}
+        broken = False
+        try:
+            while todo or running:
+                while _may_submit(todo, running, window, broken):
+                    path, deaths = todo.pop()
+                    running[pool.submit(task, path, settings, robot_raw, label)] = (
+                        path,
+                        deaths,
+                    )
+                if not running:
+                    break
+                done, _ = wait(running, return_when=FIRST_COMPLETED)
+                for future in done:
+                    path, deaths = running.pop(future)
+                    try:
+                        yield future.result()
+                    except BrokenProcessPool:
+                        broken = True
+                        if deaths < WORKER_DEATH_RETRIES:
+                            todo.append((path, deaths + 1))
+                        else:
+                            yield _error_result(path, "the worker process died checking it")
+                if broken and not running:
+                    break
+        finally:
+            pool.shutdown(wait=not broken, cancel_futures=True)
+
+
+def _run_cluster(
+    paths: list[str], settings: CheckSettings, robot_raw: bytes, label: str, address: str
+) -> Iterator[dict]:
+    """The workers of an existing Dask distributed scheduler (they must see the case paths)."""
+    try:
+        from dask.distributed import Client, as_completed
+    except ImportError as error:
+        raise ReachgateError(f"--cluster needs dask.distributed ({error})") from None
+    try:
+        client = Client(address, timeout=CLUSTER_CONNECT_TIMEOUT_S)
+    except (OSError, ValueError) as error:
+        raise ReachgateError(f"--cluster {address}: cannot reach the scheduler ({error})") from None
+    token = hashlib.sha256(f"{os.getpid()} {time.time_ns()}".encode()).hexdigest()[:12]
+    running: dict = {}
+    try:
+        threads = sum(client.nthreads().values()) or 1
+        window = IN_FLIGHT_PER_WORKER * threads
+        todo = list(reversed(list(enumerate(paths))))
+        pending = as_completed()
+
+        def submit() -> None:
+            index, path = todo.pop()
+            future = client.submit(
+                check_case, path, settings, robot_raw, label, key=f"reachgate-{token}-{index}"
+            )
+            running[future.key] = path
+            pending.add(future)
+
+        while todo and len(running) < window:
+            submit()
+        for future in pending:
+            path = running.pop(future.key)
+            try:
+                result = future.result()
+            except Exception as error:  # a lost worker, a task the cluster gave up on
+                result = _error_result(path, f"the cluster failed it ({type(error).__name__})")
+            future.release()
+            yield result
+            if todo:
+                submit()
+    finally:
+        client.close()
+
+
+# -- the parent side -----------------------------------------------------------------------
+
+
+def _validate_settings(robot: Robot, settings: CheckSettings) -> None:
+    """Refuse settings the robot cannot take (e.g. --rail-at off the rail) before any case."""
+    import numpy as np
+
+    rail_positions(
+        robot,
+        np.array([0.0, 1.0]),
+        np.zeros((2, 3)),
+        settings.rail,
+        settings.rail_at_m,
+        settings.rail_bandwidth_hz,
+    )
+
+
+def _worst_margin(margins: dict) -> tuple[float | None, str | None, str | None]:
+    best = (None, None, None)
+    for axis, values in margins.items():
+        for kind, value in values.items():
+            if not math.isnan(value) and (best[0] is None or value < best[0]):
+                best = (value, axis, kind)
+    return best
+
+
+def _store_row(result: dict, name: str, common: dict) -> tuple[dict, list[tuple]]:
+    report = result["report"] or {}
+    violations = report.get("violations", [])
+    fractions = result["excess_fractions"] or [None] * len(violations)
+    counts: dict[str, dict[str, int]] = {}
+    for v in violations:
+        c = counts.setdefault(v["check"], {"violations": 0, "near": 0, "cases": 0})
+        c["violations" if v["severity"] == Severity.VIOLATION.value else "near"] += 1
+    for c in counts.values():
+        c["cases"] = int(c["violations"] > 0)
+    margins = report.get("margins")
+    worst, worst_axis, worst_limit = _worst_margin(margins or {})
+    row = {
+        "case_name": name,
+        "case_path": result["case_path"],
+        "case_sha256": result["case_sha256"],
+        **common,
+        "verdict": result["verdict"],
+        "error": result["error"],
+        "samples": report.get("samples"),
+        "duration_s": report.get("duration_s"),
+        "worst_margin": worst,
+        "worst_margin_axis": worst_axis,
+        "worst_margin_limit": worst_limit,
+        "slowdown": report.get("slowdown"),
+        "counts_json": json.dumps(counts, sort_keys=True),
+        "margins_json": None if margins is None else json.dumps(margins),
+        "tool_version": report.get("tool_version", __version__),
+        "elapsed_s": result["elapsed_s"],
+        "checked_at": _now(),
+        "worker": result["worker"],
+    }
+    rows = [
+        (
+            v["check"],
+            v["axis"],
+            v["severity"],
+            v["start_s"],
+            v["end_s"],
+            v["worst_s"],
+            v["worst"],
+            v["limit"],
+            v["unit"],
+            f,
+        )
+        for v, f in zip(violations, fractions, strict=True)
+    ]
+    return row, rows
+
+
+def _now() -> str:
+    return datetime.now(UTC).isoformat(timespec="milliseconds")
+
+
+def scan(
+    robot_path: str | Path,
+    case_paths: Iterable[str | Path],
+    settings: CheckSettings | None = None,
+    *,
+    store_path: str | Path | None = None,
+    workers: int | None = None,
+    cluster: str | None = None,
+    fresh: bool = False,
+    progress: Callable[[ScanProgress], None] | None = None,
+) -> ScanSummary:
+    """Check every case with the same robot and settings; results go to the store.
+
+    case_paths: files, folders (every *.csv inside) and glob patterns. store_path: default
+    reachgate_scan.sqlite in the cases' common folder. workers: local processes (default
+    os.cpu_count()); cluster: address of a running Dask scheduler instead. fresh: re-check
+    cases the store already holds. Cases stored as errors are always tried again.
+    Returns the summary of these cases, ranked worst first. Raises ReachgateError on bad input;
+    KeyboardInterrupt leaves every finished case in the store.
+    """
+    settings = settings or CheckSettings()
+    cases = discover_cases(case_paths)
+    store_file = Path(store_path) if store_path is not None else default_store_path(cases)
+    robot_file = Path(robot_path)
+    robot = load_robot(robot_file)
+    robot_raw = robot_file.read_bytes()
+    robot_sha = hashlib.sha256(robot_raw).hexdigest()
+    _validate_settings(robot, settings)
+    if workers is not None and workers < 1:
+        raise ReachgateError(f"--workers: must be at least 1, got {workers}")
+    settings_json = json.dumps(settings.as_dict(), sort_keys=True)
+    common = {
+        "robot_name": robot.name,
+        "robot_sha256": robot_sha,
+        "settings_json": settings_json,
+    }
+
+    with Store(store_file) as store:
+        names = {str(c): case_name(c, store_file) for c in cases}
+        stored = {} if fresh else store.fingerprints()
+        todo: list[str] = []
+        for c in cases:
+            known = stored.get(names[str(c)])
+            same_setup = known is not None and known[1:3] == (robot_sha, settings_json)
+            if same_setup and known[3] != CaseVerdict.ERROR.value:
+                try:
+                    if file_sha256(c) == known[0]:
+                        continue
+                except ReachgateError:
+                    pass  # unreadable now: check it again, and record the error
+            todo.append(str(c))
+        resumed = len(cases) - len(todo)
+        n_workers = workers or os.cpu_count() or 1
+        engine = f"dask {cluster}" if cluster else f"local x{n_workers}"
+        run_id = store.start_run(
+            started_at=_now(),
+            tool_version=__version__,
+            robot_path=str(robot_file.resolve()),
+            robot_sha256=robot_sha,
+            settings_json=settings_json,
+            engine=engine,
+            cases=len(cases),
+            resumed=resumed,
+        )
+        common["run_id"] = run_id
+        failing = 0
+        if progress:
+            progress(ScanProgress(0, len(todo), 0, resumed))
+        if todo:
+            label = str(robot_file)
+            results = (
+                _run_cluster(todo, settings, robot_raw, label, cluster)
+                if cluster
+                else _run_local(todo, settings, robot_raw, label, min(n_workers, len(todo)))
+            )
+            with closing(results):
+                for done, result in enumerate(results, start=1):
+                    name = names[result["case_path"]]
+                    store.write_case(*_store_row(result, name, common))
+                    failing += result["verdict"] != CaseVerdict.PASS.value
+                    if progress:
+                        progress(ScanProgress(done, len(todo), failing, resumed, name))
+        store.finish_run(run_id, _now())
+        results_now = store.results(list(names.values()))
+    return ScanSummary(
+        store_path=store_file,
+        cases=results_now,
+        checked=len(todo),
+        resumed=resumed,
+        counts=batch_counts(results_now),
+    )
+
+
+# -- rendering -----------------------------------------------------------------------------
+
+
+def _row_text(v, time_s: float | None) -> str:
+    return "-" if v is None else f"{v.check.value} {v.axis} {time_s:.2f} s"
+
+
+def settings_text(settings: dict) -> str:
+    """CheckSettings.as_dict() as one short line, in the check options' words and units."""
+    place = ",".join(f"{v:g}" for v in [*settings["place_xyz_m"], *settings["place_rpy_deg"]])
+    rail = settings["rail"]
+    if rail == "follow":
+        rail += f" {settings['rail_bandwidth_hz']:g} Hz"
+    elif settings["rail_at_m"] is not None:
+        rail += f" at {settings['rail_at_m']:g} m"
+    lag = "off" if settings["lag_s"] is None else f"{settings['lag_s']:g} s"
+    tol = f"{1000 * settings['lag_tol_m']:g} mm"
+    return f"place {place} (m, deg); rail {rail}; lag {lag}, tolerance {tol}"
+
+
+def _margin_text(c: CaseResult) -> str:
+    if c.worst_margin is None:
+        return "-"
+    return f"{c.worst_margin:.2f} ({c.worst_margin_axis} {c.worst_margin_limit})"
+
+
+def render_table(summary: ScanSummary, width: int = 120) -> str:
+    """Colour-free summary: ranked cases, counts per check, errors, cautions."""
+    from rich import box
+    from rich.console import Console
+    from rich.table import Table
+
+    from reachgate.report import SAFETY_CAUTIONS
+
+    buffer = io.StringIO()
+    console = Console(
+        file=buffer,
+        width=width,
+        no_color=True,
+        color_system=None,
+        force_terminal=False,
+        highlight=False,
+        emoji=False,
+        markup=False,
+    )
+    tally = summary.tally()
+    console.print(f"reachgate {__version__} scan, results store {summary.store_path}")
+    console.print(
+        f"{len(summary.cases)} cases: "
+        f"{tally['pass']} pass, {tally['fail']} fail, {tally['error']} error"
+    )
+    if summary.checked or summary.resumed:
+        console.print(
+            f"checked now: {summary.checked}; taken from the store unchanged: {summary.resumed}"
+        )
+    robots = sorted({c.robot_name or "?" for c in summary.cases})
+    setups = {settings_text(c.settings) for c in summary.cases}
+    console.print(f"robot: {', '.join(robots)}")
+    console.print(
+        "settings: " + (setups.pop() if len(setups) == 1 else "differ between cases (see json)")
+    )
+    console.print("ranked worst first: errors, failing cases, passing cases, by worst margin")
+    table = Table(box=box.ASCII, pad_edge=False)
+    titles = ("#", "case", "verdict", "worst margin", "first violation from", "worst violation at")
+    for title in titles:
+        table.add_column(title, justify="right" if title == "#" else "left")
+    table.add_column("slow-down", justify="right")
+    for rank, c in enumerate(summary.cases, start=1):
+        slow = "-" if c.slowdown is None or c.verdict is CaseVerdict.ERROR else f"{c.slowdown:.3f}"
+        table.add_row(
+            str(rank),
+            c.name,
+            c.verdict.value,
+            _margin_text(c),
+            _row_text(c.first, c.first and c.first.start_s),
+            _row_text(c.worst, c.worst and c.worst.worst_s),
+            slow,
+        )
+    console.print(table)
+    console.print("margins: fraction of a limit left (1 unused, 0 at it, < 0 beyond)")
+    if summary.counts:
+        counts = Table(box=box.ASCII, pad_edge=False)
+        for title in ("check", "violation rows", "near rows", "failing cases"):
+            counts.add_column(title, justify="left" if title == "check" else "right")
+        for kind, n in summary.counts.items():
+            counts.add_row(kind, str(n.violations), str(n.near), str(n.cases))
+        console.print("counts per check over the batch:")
+        console.print(counts)
+    errors = [c for c in summary.cases if c.verdict is CaseVerdict.ERROR]
+    if errors:
+        console.print("errors:")
+        for c in errors:
+            console.print(f"  - {c.name}: {c.error}")
+    console.print("cautions:")
+    for line in SAFETY_CAUTIONS:
+        console.print(f"  - {line}")
+    return buffer.getvalue()
+
+
+CSV_COLUMNS = (
+    "rank",
+    "case",
+    "verdict",
+    "worst_margin",
+    "worst_margin_axis",
+    "worst_margin_limit",
+    "first_check",
+    "first_axis",
+    "first_start_s",
+    "worst_check",
+    "worst_axis",
+    "worst_s",
+    "slowdown",
+    "samples",
+    "duration_s",
+    "elapsed_s",
+    "case_sha256",
+    "error",
+)
+
+
+def render_csv(summary: ScanSummary) -> str:
+    """One line per case, ranked worst first, SI units."""
+    buffer = io.StringIO()
+    writer = csv.writer(buffer, lineterminator="\n")
+    writer.writerow(CSV_COLUMNS)
+    for rank, c in enumerate(summary.cases, start=1):
+        f, w = c.first, c.worst
+        values = [
+            rank,
+            c.name,
+            c.verdict.value,
+            c.worst_margin,
+            c.worst_margin_axis,
+            c.worst_margin_limit,
+            f and f.check.value,
+            f and f.axis,
+            f and f.start_s,
+            w and w.check.value,
+            w and w.axis,
+            w and w.worst_s,
+            c.slowdown,
+            c.samples,
+            c.duration_s,
+            c.elapsed_s,
+            c.case_sha256,
+            c.error,
+        ]
+        writer.writerow(
+            ["" if v is None else repr(v) if isinstance(v, float) else v for v in values]
+        )
+    return buffer.getvalue()
+
+
+def render_summary(summary: ScanSummary, fmt: str = "table") -> str:
+    if fmt == "json":
+        return json.dumps({"tool_version": __version__, **summary.as_dict()}, indent=2) + "\n"
+    if fmt == "csv":
+        return render_csv(summary)
+    return render_table(summary)
+
+
+class ProgressBar:
+    """A colour-free rich progress bar on stderr; a callable for scan(progress=...)."""
+
+    def __init__(self) -> None:
+        from rich.console import Console
+        from rich.progress import (
+            BarColumn,
+            MofNCompleteColumn,
+            Progress,
+            TextColumn,
+            TimeRemainingColumn,
+        )
+
+        console = Console(stderr=True, no_color=True, color_system=None, highlight=False)
+        self._progress = Progress(
+            TextColumn("scan"),
+            BarColumn(),
+            MofNCompleteColumn(),
+            TextColumn("failing {task.fields[failing]}"),
+            TextColumn("{task.fields[rate]}"),
+            TextColumn("left"),
+            TimeRemainingColumn(),
+            console=console,
+            transient=False,
+        )
+        self._task = None
+
+    def __enter__(self) -> ProgressBar:
+        self._progress.start()
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self._progress.stop()
+
+    def __call__(self, state: ScanProgress) -> None:
+        if self._task is None:
+            self._task = self._progress.add_task("scan", total=state.total, failing=0, rate="")
+        task = self._progress.tasks[0]
+        rate = f"{task.speed:.2f} cases/s" if task.speed else ""
+        self._progress.update(self._task, completed=state.done, failing=state.failing, rate=rate)

@@ -1,0 +1,437 @@
+"""The scan results store: one SQLite file, one row per case, violation rows in a child table.
+
+The store is written only by the process that runs the scan; workers hand back plain dicts.
+Each case is written in one transaction in WAL mode, so an interrupted scan (Ctrl-C,
+kill -9) loses at most the cases in flight and leaves a consistent file. A case is known by
+its name (its path relative to the store's folder, or its absolute path when outside it);
+rechecking a case replaces its row.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import math
+import sqlite3
+from dataclasses import dataclass, field
+from enum import Enum
+from pathlib import Path
+
+from reachgate.checks import Check, Severity, Violation
+from reachgate.errors import ReachgateError
+
+#: Bumped when the tables change; a store of another version is refused, not guessed at.
+SCHEMA_VERSION = 1
+#: How long a write waits for another process holding the store (a second scan), s.
+BUSY_TIMEOUT_S = 30.0
+#: Checks that have no fraction of a limit to rank by: the path cannot be followed at all.
+_UNRANKED_CHECKS = frozenset({Check.REACH, Check.BRANCH})
+
+_SCHEMA = """
+CREATE TABLE IF NOT EXISTS meta (key TEXT PRIMARY KEY, value TEXT NOT NULL);
+CREATE TABLE IF NOT EXISTS runs (
+    run_id INTEGER PRIMARY KEY,
+    started_at TEXT NOT NULL,
+    finished_at TEXT,
+    tool_version TEXT NOT NULL,
+    robot_path TEXT NOT NULL,
+    robot_sha256 TEXT NOT NULL,
+    settings_json TEXT NOT NULL,
+    engine TEXT NOT NULL,
+    cases INTEGER NOT NULL,
+    resumed INTEGER NOT NULL
+);
+CREATE TABLE IF NOT EXISTS cases (
+    case_id INTEGER PRIMARY KEY,
+    case_name TEXT NOT NULL UNIQUE,
+    case_path TEXT NOT NULL,
+    case_sha256 TEXT,
+    robot_name TEXT,
+    robot_sha256 TEXT NOT NULL,
+    settings_json TEXT NOT NULL,
+    verdict TEXT NOT NULL CHECK (verdict IN ('pass', 'fail', 'error')),
+    error TEXT,
+    samples INTEGER,
+    duration_s REAL,
+    worst_margin REAL,
+    worst_margin_axis TEXT,
+    worst_margin_limit TEXT,
+    slowdown REAL,
+    counts_json TEXT NOT NULL,
+    margins_json TEXT,
+    tool_version TEXT NOT NULL,
+    elapsed_s REAL NOT NULL,
+    checked_at TEXT NOT NULL,
+    worker TEXT NOT NULL,
+    run_id INTEGER NOT NULL REFERENCES runs (run_id)
+);
+CREATE TABLE IF NOT EXISTS violations (
+    case_id INTEGER NOT NULL REFERENCES cases (case_id),
+    seq INTEGER NOT NULL,
+    check_name TEXT NOT NULL,
+    axis TEXT NOT NULL,
+    severity TEXT NOT NULL,
+    start_s REAL NOT NULL,
+    end_s REAL NOT NULL,
+    worst_s REAL NOT NULL,
+    worst REAL NOT NULL,
+    limit_value REAL NOT NULL,
+    unit TEXT NOT NULL,
+    excess_fraction REAL,
+    PRIMARY KEY (case_id, seq)
+);
+"""
+
+
+class CaseVerdict(Enum):
+    PASS = "pass"
+    FAIL = "fail"
+    ERROR = "error"
+
+
+@dataclass(frozen=True)
+class CheckCount:
+    """Rows of one check in one case or a batch: violation rows, near rows, failing cases."""
+
+    violations: int = 0
+    near: int = 0
+    cases: int = 0
+
+    def as_dict(self) -> dict:
+        return {"violations": self.violations, "near": self.near, "cases": self.cases}
+
+
+@dataclass(frozen=True)
+class CaseResult:
+    """One case as stored. worst_margin: smallest fraction of any limit left (None on error).
+
+    first: the earliest violation row; worst: the violation row furthest beyond its limit
+    (reach and branch rows rank first, then by excess_fraction). SI units throughout.
+    """
+
+    name: str
+    path: str
+    verdict: CaseVerdict
+    error: str | None
+    case_sha256: str | None
+    robot_name: str | None
+    robot_sha256: str
+    settings: dict
+    samples: int | None
+    duration_s: float | None
+    worst_margin: float | None
+    worst_margin_axis: str | None
+    worst_margin_limit: str | None
+    slowdown: float | None
+    counts: dict[str, CheckCount]
+    margins: dict[str, dict[str, float]] | None
+    violations: tuple[Violation, ...]
+    excess_fractions: tuple[float | None, ...]
+    first: Violation | None
+    worst: Violation | None
+    elapsed_s: float
+    checked_at: str
+    worker: str
+    run_id: int
+    case_id: int
+
+    @property
+    def failed(self) -> bool:
+        return self.verdict is not CaseVerdict.PASS
+
+    def as_dict(self) -> dict:
+        """JSON-ready: non-finite numbers become null."""
+        return _finite(
+            {
+                "case": self.name,
+                "path": self.path,
+                "verdict": self.verdict.value,
+                "error": self.error,
+                "case_sha256": self.case_sha256,
+                "robot": self.robot_name,
+                "robot_sha256": self.robot_sha256,
+                "settings": self.settings,
+                "samples": self.samples,
+                "duration_s": self.duration_s,
+                "worst_margin": self.worst_margin,
+                "worst_margin_axis": self.worst_margin_axis,
+                "worst_margin_limit": self.worst_margin_limit,
+                "slowdown": self.slowdown,
+                "counts": {k: c.as_dict() for k, c in self.counts.items()},
+                "first_violation": None if self.first is None else self.first.as_dict(),
+                "worst_violation": None if self.worst is None else self.worst.as_dict(),
+                "violations": [v.as_dict() for v in self.violations],
+                "margins": self.margins,
+                "elapsed_s": self.elapsed_s,
+                "checked_at": self.checked_at,
+                "worker": self.worker,
+            }
+        )
+
+
+@dataclass(frozen=True)
+class ScanSummary:
+    """A batch, ranked worst first: errors, then failing cases, then passing ones, each by
+    worst margin (smallest first). checked/resumed: cases checked by this run / taken from
+    the store unchanged (both 0 for a summary read back from the store)."""
+
+    store_path: Path
+    cases: tuple[CaseResult, ...]
+    checked: int = 0
+    resumed: int = 0
+    counts: dict[str, CheckCount] = field(default_factory=dict)
+
+    @property
+    def passed(self) -> bool:
+        return bool(self.cases) and not any(c.failed for c in self.cases)
+
+    def tally(self) -> dict[str, int]:
+        out = {v.value: 0 for v in CaseVerdict}
+        for c in self.cases:
+            out[c.verdict.value] += 1
+        return out
+
+    def as_dict(self) -> dict:
+        return {
+            "store": str(self.store_path),
+            "cases": len(self.cases),
+            "checked": self.checked,
+            "resumed": self.resumed,
+            "verdicts": self.tally(),
+            "counts": {k: c.as_dict() for k, c in self.counts.items()},
+            "results": [c.as_dict() for c in self.cases],
+        }
+
+
+def _finite(value):
+    """Replace inf / nan by None, recursively (JSON has no such numbers)."""
+    if isinstance(value, float):
+        return value if math.isfinite(value) else None
+    if isinstance(value, dict):
+        return {k: _finite(v) for k, v in value.items()}
+    if isinstance(value, list | tuple):
+        return [_finite(v) for v in value]
+    return value
+
+
+def rank_key(case: CaseResult) -> tuple:
+    """Worst first: error < fail < pass, then smallest worst margin, then name."""
+    order = {CaseVerdict.ERROR: 0, CaseVerdict.FAIL: 1, CaseVerdict.PASS: 2}
+    margin = -math.inf if case.worst_margin is None else case.worst_margin
+    return (order[case.verdict], margin, case.name)
+
+
+def worst_row_key(check: Check, excess_fraction: float | None) -> tuple:
+    """Sort key putting the worst violation row first: reach, branch, then by fraction."""
+    if check in _UNRANKED_CHECKS or excess_fraction is None:
+        return (0, 0 if check is Check.REACH else 1, 0.0)
+    return (1, 0, -excess_fraction)
+
+
+def batch_counts(cases: tuple[CaseResult, ...]) -> dict[str, CheckCount]:
+    """Counts per check over a batch, in the report order of Check."""
+    out: dict[str, CheckCount] = {}
+    for kind in Check:
+        per = [c.counts[kind.value] for c in cases if kind.value in c.counts]
+        if per:
+            out[kind.value] = CheckCount(
+                violations=sum(p.violations for p in per),
+                near=sum(p.near for p in per),
+                cases=sum(p.violations > 0 for p in per),
+            )
+    return out
+
+
+class Store:
+    """An open results store. Use as a context manager; every write is one transaction."""
+
+    def __init__(self, path: Path, create: bool = True) -> None:
+        self.path = Path(path)
+        if not create and not self.path.is_file():
+            raise ReachgateError(f"{self.path}: no such results store")
+        try:
+            if create:
+                self.path.parent.mkdir(parents=True, exist_ok=True)
+            self.db = sqlite3.connect(self.path, timeout=BUSY_TIMEOUT_S, isolation_level=None)
+            self.db.execute("PRAGMA journal_mode=WAL")
+            # NORMAL in WAL mode: committed cases survive a killed process; never corrupts.
+            self.db.execute("PRAGMA synchronous=NORMAL")
+            self._prepare()
+        except sqlite3.DatabaseError as error:
+            raise ReachgateError(f"{self.path}: not a usable results store ({error})") from None
+        except OSError as error:
+            raise ReachgateError(f"{self.path}: cannot open ({error.strerror})") from None
+
+    def _prepare(self) -> None:
+        tables = {r[0] for r in self.db.execute("SELECT name FROM sqlite_master")}
+        if "meta" in tables:
+            row = self.db.execute("SELECT value FROM meta WHERE key='schema_version'").fetchone()
+            if row is None or int(row[0]) != SCHEMA_VERSION:
+                found = None if row is None else row[0]
+                raise ReachgateError(
+                    f"{self.path}: store schema version {found}, this program writes "
+                    f"{SCHEMA_VERSION}; use another --store"
+                )
+            return
+        if tables:
+            raise ReachgateError(f"{self.path}: an SQLite file, but not a reachgate results store")
+        self.db.executescript(
+            "BEGIN IMMEDIATE;"
+            + _SCHEMA
+            + f"INSERT OR IGNORE INTO meta VALUES ('schema_version', '{SCHEMA_VERSION}');"
+            + "COMMIT;"
+        )
+
+    def __enter__(self) -> Store:
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.close()
+
+    def close(self) -> None:
+        self.db.close()
+
+    # -- runs -------------------------------------------------------------------------------
+
+    def start_run(self, **fields) -> int:
+        keys = ", ".join(fields)
+        marks = ", ".join("?" for _ in fields)
+        cur = self.db.execute(f"INSERT INTO runs ({keys}) VALUES ({marks})", tuple(fields.values()))
+        return int(cur.lastrowid)
+
+    def finish_run(self, run_id: int, finished_at: str) -> None:
+        self.db.execute("UPDATE runs SET finished_at = ? WHERE run_id = ?", (finished_at, run_id))
+
+    # -- cases ------------------------------------------------------------------------------
+
+    def fingerprints(self) -> dict[str, tuple[str | None, str, str, str]]:
+        """case name -> (case sha256, robot sha256, settings json, verdict) of stored rows."""
+        rows = self.db.execute(
+            "SELECT case_name, case_sha256, robot_sha256, settings_json, verdict FROM cases"
+        )
+        return {r[0]: (r[1], r[2], r[3], r[4]) for r in rows}
+
+    def write_case(self, row: dict, violations: list[tuple]) -> int:
+        """Replace the case's row and its violation rows in one transaction. -> case_id.
+
+        row: column -> value of table cases (without case_id); violations: tuples of
+        (check, axis, severity, start_s, end_s, worst_s, worst, limit, unit, excess_fraction).
+        """
+        keys = ", ".join(row)
+        marks = ", ".join("?" for _ in row)
+        db = self.db
+        db.execute("BEGIN IMMEDIATE")
+        try:
+            old = db.execute(
+                "SELECT case_id FROM cases WHERE case_name = ?", (row["case_name"],)
+            ).fetchone()
+            if old is not None:
+                db.execute("DELETE FROM violations WHERE case_id = ?", (old[0],))
+                db.execute("DELETE FROM cases WHERE case_id = ?", (old[0],))
+            cur = db.execute(f"INSERT INTO cases ({keys}) VALUES ({marks})", tuple(row.values()))
+            case_id = int(cur.lastrowid)
+            db.executemany(
+                "INSERT INTO violations (case_id, seq, check_name, axis, severity, start_s, "
+                "end_s, worst_s, worst, limit_value, unit, excess_fraction) "
+                "VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
+                [(case_id, i, *v) for i, v in enumerate(violations)],
+            )
+            db.execute("COMMIT")
+        except BaseException:
+            db.execute("ROLLBACK")
+            raise
+        return case_id
+
+    def results(self, names: list[str] | None = None) -> tuple[CaseResult, ...]:
+        """Stored cases (all, or those named), ranked worst first."""
+        db = self.db
+        db.row_factory = sqlite3.Row
+        try:
+            rows = db.execute("SELECT * FROM cases").fetchall()
+            children: dict[int, list] = {}
+            for v in db.execute("SELECT * FROM violations ORDER BY case_id, seq"):
+                children.setdefault(v["case_id"], []).append(v)
+        finally:
+            db.row_factory = None
+        if names is not None:
+            wanted = set(names)
+            rows = [r for r in rows if r["case_name"] in wanted]
+        return tuple(sorted((_case(r, children.get(r["case_id"], [])) for r in rows), key=rank_key))
+
+
+def _case(row: sqlite3.Row, children: list[sqlite3.Row]) -> CaseResult:
+    violations = tuple(
+        Violation(
+            check=Check(v["check_name"]),
+            axis=v["axis"],
+            severity=Severity(v["severity"]),
+            start_s=v["start_s"],
+            end_s=v["end_s"],
+            worst_s=v["worst_s"],
+            worst=v["worst"],
+            limit=v["limit_value"],
+            unit=v["unit"],
+        )
+        for v in children
+    )
+    fractions = tuple(v["excess_fraction"] for v in children)
+    failing = [
+        (v, f)
+        for v, f in zip(violations, fractions, strict=True)
+        if v.severity is Severity.VIOLATION
+    ]
+    first = min(
+        (v for v, _ in failing), key=lambda v: (v.start_s, v.check.value, v.axis), default=None
+    )
+    worst = min(failing, key=lambda p: worst_row_key(p[0].check, p[1]), default=(None, None))[0]
+    counts = {k: CheckCount(**c) for k, c in json.loads(row["counts_json"]).items()}
+    return CaseResult(
+        name=row["case_name"],
+        path=row["case_path"],
+        verdict=CaseVerdict(row["verdict"]),
+        error=row["error"],
+        case_sha256=row["case_sha256"],
+        robot_name=row["robot_name"],
+        robot_sha256=row["robot_sha256"],
+        settings=json.loads(row["settings_json"]),
+        samples=row["samples"],
+        duration_s=row["duration_s"],
+        worst_margin=row["worst_margin"],
+        worst_margin_axis=row["worst_margin_axis"],
+        worst_margin_limit=row["worst_margin_limit"],
+        slowdown=row["slowdown"],
+        counts=counts,
+        margins=None if row["margins_json"] is None else json.loads(row["margins_json"]),
+        violations=violations,
+        excess_fractions=fractions,
+        first=first,
+        worst=worst,
+        elapsed_s=row["elapsed_s"],
+        checked_at=row["checked_at"],
+        worker=row["worker"],
+        run_id=row["run_id"],
+        case_id=row["case_id"],
+    )
+
+
+def load_summary(store_path: str | Path, *, robot_path: str | Path | None = None) -> ScanSummary:
+    """Every case in a results store, ranked worst first, without checking anything.
+
+    robot_path: keep only the cases checked with this robot file's content (by sha256).
+    """
+    path = Path(store_path)
+    with Store(path, create=False) as store:
+        cases = store.results()
+    if robot_path is not None:
+        try:
+            sha = hashlib.sha256(Path(robot_path).read_bytes()).hexdigest()
+        except OSError as error:
+            raise ReachgateError(f"{robot_path}: cannot read ({error.strerror})") from None
+        cases = tuple(c for c in cases if c.robot_sha256 == sha)
+        if not cases:
+            raise ReachgateError(
+                f"{path}: no stored case was checked with this content of {robot_path}"
+            )
+    elif not cases:
+        raise ReachgateError(f"{path}: the results store holds no case yet")
+    return ScanSummary(store_path=path, cases=cases, counts=batch_counts(cases))
