@@ -267,6 +267,101 @@ def envelope_command(
     raise typer.Exit(EXIT_PASS)
 
 
+# --- scan ---
+
+
+@app.command("scan")
+def scan_command(
+    robot: Annotated[
+        Path | None,
+        typer.Argument(help="Robot description (TOML); optional with --report."),
+    ] = None,
+    cases: Annotated[
+        list[str] | None,
+        typer.Argument(
+            help="Case files, folders (every *.csv inside, recursively) and glob patterns.",
+            show_default=False,
+        ),
+    ] = None,
+    place: PlaceOption = None,
+    rail: RailOption = RailMode.fixed,
+    rail_at: RailAtOption = None,
+    rail_bandwidth: BandwidthOption = 0.5,
+    lag: LagOption = None,
+    lag_tol: LagTolOption = 1.0,
+    store: Annotated[
+        Path | None,
+        typer.Option(
+            "--store",
+            help="Results store (SQLite); default reachgate_scan.sqlite in the cases' folder.",
+        ),
+    ] = None,
+    workers: Annotated[
+        int | None, typer.Option("--workers", help="Local worker processes (default: one per CPU).")
+    ] = None,
+    cluster: Annotated[
+        str | None,
+        typer.Option("--cluster", help="Address of a running Dask scheduler to check the cases."),
+    ] = None,
+    fresh: Annotated[
+        bool, typer.Option("--fresh", help="Check every case again, even those already stored.")
+    ] = False,
+    report: Annotated[
+        bool, typer.Option("--report", help="Print the summary held in --store; check nothing.")
+    ] = False,
+    quiet: Annotated[bool, typer.Option("--quiet", help="No progress bar.")] = False,
+    fmt: Annotated[
+        OutputFormat, typer.Option("--format", help="Summary format.")
+    ] = OutputFormat.table,
+    out: Annotated[Path | None, typer.Option("--out", help="Write the summary here.")] = None,
+) -> None:
+    """Check many cases with one robot and one set of options; results in a store, resumable."""
+    from contextlib import nullcontext
+
+    from reachgate.scan import ProgressBar, load_summary, render_summary, scan
+
+    if report:
+        if store is None:
+            _fail_bad_input("--report reads a results store: give --store FILE")
+        if cases:
+            _fail_bad_input("--report checks nothing: give no cases (ROBOT is optional)")
+        summary = _guarded(lambda: load_summary(store, robot_path=robot))
+    else:
+        if robot is None or not cases:
+            _fail_bad_input("scan needs ROBOT and at least one case (file, folder or glob)")
+        settings = _guarded(
+            lambda: settings_from_options(place, rail, rail_at, rail_bandwidth, lag, lag_tol)
+        )
+        bar = nullcontext(None) if quiet or not sys.stderr.isatty() else ProgressBar()
+        try:
+            with bar as show:
+                summary = _guarded(
+                    lambda: scan(
+                        robot,
+                        cases,
+                        settings,
+                        store_path=store,
+                        workers=workers,
+                        cluster=cluster,
+                        fresh=fresh,
+                        progress=show,
+                    )
+                )
+        except KeyboardInterrupt:
+            print(
+                "reachgate: scan interrupted; finished cases are in the store, "
+                "run the same command again to resume",
+                file=sys.stderr,
+            )
+            raise typer.Exit(EXIT_INTERRUPTED) from None
+    _write_or_print(render_summary(summary, fmt.value), out)
+    raise typer.Exit(EXIT_PASS if summary.passed else EXIT_FAIL)
+
+
+#: Exit code of an interrupted scan: 128 + SIGINT, the shell's convention (common practice).
+EXIT_INTERRUPTED = 130
+
+
 def main() -> None:
     """Console-script entry point."""
     os.environ.setdefault("NO_COLOR", "1")
