@@ -1,0 +1,188 @@
+"""Velocity, acceleration and jerk of sampled signals on their real, possibly uneven, times.
+
+Method: Savitzky–Golay smoothing generalised to uneven sampling. Around every sample a
+polynomial of degree FIT_DEGREE is fitted by least squares to the WINDOW_SAMPLES nearest
+samples at their real times, and its derivatives at the sample are the estimates. Near the
+ends the window is one-sided (it slides to stay inside the data).
+
+The fit depends on the times alone, so for every sample one weight row per derivative order
+is computed once from t, (N, window), and applied to all k signal columns. Each window's times
+are mapped onto [-1, 1] and fitted in the Legendre basis, which keeps the small normal
+equations well conditioned (see derivative_weights). Work goes in blocks of CHUNK_SAMPLES
+samples, spread over THREADS threads; the result does not depend on either.
+"""
+
+from __future__ import annotations
+
+import os
+from concurrent.futures import ThreadPoolExecutor
+from dataclasses import dataclass
+
+import numpy as np
+
+#: Samples in each local fit, and the fit degree. Chosen by measurement (sinusoid, ±20 % step
+#: jitter, max error over the path / amplitude; see tests/test_derivatives.py). 7 samples,
+#: degree 4: jerk of 1 Hz at 1 kHz within 3e-5 inside the path and 2e-4 at the one-sided
+#: ends; at 250 Hz 4e-4 and 3e-3. Jerk noise gain (std of jerk per unit std of white noise
+#: on x, times h³): 0.41 inside, 3.4 at the ends. 9 samples with degree 5 is about 50 times
+#: more accurate on smooth motion but doubles the noise gain (0.87 / 5.9) and spreads a
+#: short event over 8 steps; 5 samples with degree 4 interpolates (end noise gain 17).
+WINDOW_SAMPLES = 7
+
+#: Degree of the local polynomial: exact on polynomials up to this degree, jitter or not.
+FIT_DEGREE = 4
+
+#: Samples per block: the block's working arrays (a few MB) stay in cache, which measured
+#: about 1.5 times faster than blocks of 200,000; memory stays bounded whatever N is.
+CHUNK_SAMPLES = 8192
+
+#: Threads sharing the blocks (the machines this runs on have 2 cores).
+THREADS = min(2, os.cpu_count() or 1)
+
+#: Derivative orders estimated: velocity, acceleration, jerk.
+_ORDERS = (1, 2, 3)
+
+
+@dataclass(frozen=True, eq=False)
+class Derivatives:
+    """Time derivatives of k signals at their N samples, each (N, k) (or (N,) for 1-D input).
+
+    velocity in unit/s, acceleration in unit/s², jerk in unit/s³, unit being the signal's.
+    """
+
+    velocity: np.ndarray
+    acceleration: np.ndarray
+    jerk: np.ndarray
+
+
+def _window_starts(index: np.ndarray, n: int, window: int) -> np.ndarray:
+    """First sample of each sample's window: centred, slid inward at the ends. (c,) ints."""
+    return np.clip(index - window // 2, 0, n - window)
+
+
+def _legendre_with_derivatives(u: np.ndarray, degree: int, orders: int) -> np.ndarray:
+    """Legendre polynomials P_0..P_degree and their first `orders` derivatives at u.
+
+    u: any shape S. Returns (orders + 1, degree + 1, *S); [r, m] = d^r P_m / du^r (u).
+    Recurrence: m P_m = (2m - 1) u P_{m-1} - (m - 1) P_{m-2}, differentiated r times.
+    """
+    p = np.zeros((orders + 1, degree + 1, *u.shape))
+    p[0, 0] = 1.0
+    if degree >= 1:
+        p[0, 1] = u
+        if orders >= 1:
+            p[1, 1] = 1.0
+    for m in range(2, degree + 1):
+        for r in range(orders + 1):
+            rising = u * p[r, m - 1] + (r * p[r - 1, m - 1] if r else 0.0)
+            p[r, m] = ((2 * m - 1) * rising - (m - 1) * p[r, m - 2]) / m
+    return p
+
+
+def derivative_weights(
+    t_s: np.ndarray, index: np.ndarray, window: int, degree: int
+) -> tuple[np.ndarray, np.ndarray]:
+    """Weights of the local fits for the samples `index`.
+
+    t_s: (N,) strictly increasing times in s; index: (c,) sample indices.
+    Returns (starts (c,), weights (3, window, c)): derivative r (1, 2, 3) of a signal x at
+    sample i is sum_j weights[r-1, j, i] * (x[starts[i] + j] - x[i]), in unit/s^r.
+    Orders above `degree` get zero weights. The sample axis is last (contiguous), so every
+    step is a plain vector operation over the c samples.
+
+    Each window's times are mapped onto u in [-1, 1] (centred on the window, divided by half
+    its span) and the fit uses the Legendre basis P_0..P_degree(u). On such near-even grids
+    that basis is nearly orthogonal: the normal equations have condition number <= 12 for
+    even steps and ±20 % jitter (measured, 7 samples, degree 4), so an LDLᵀ solve loses no
+    accuracy. Monomials in time centred on the sample and divided by the mean step give
+    about 1e4 inside the path and 3e7 for the one-sided end windows.
+    """
+    n = t_s.shape[0]
+    c = index.shape[0]
+    starts = _window_starts(index, n, window)
+    t_window = t_s[starts[None, :] + np.arange(window)[:, None]]  # (w, c)
+    mid_s = 0.5 * (t_window[-1] + t_window[0])
+    half_span_s = 0.5 * (t_window[-1] - t_window[0])
+    u = (t_window - mid_s) / half_span_s  # (w, c) in [-1, 1]
+    basis = _legendre_with_derivatives(u, degree, 0)[0]  # (d+1, w, c)
+    at_sample = _legendre_with_derivatives((t_s[index] - mid_s) / half_span_s, degree, 3)
+
+    p = degree + 1
+    gram = np.einsum("lwc,mwc->lmc", basis, basis)  # (p, p, c)
+
+    # LDLᵀ factorisation, vectorised over samples: gram = L diag(dia) Lᵀ, L unit lower.
+    low = np.zeros((p, p, c))
+    dia = np.empty((p, c))
+    for j in range(p):
+        dia[j] = gram[j, j] - np.einsum("kc,kc->c", low[j, :j] ** 2, dia[:j])
+        for i in range(j + 1, p):
+            acc = np.einsum("kc,kc,kc->c", low[i, :j], low[j, :j], dia[:j])
+            low[i, j] = (gram[i, j] - acc) / dia[j]
+
+    # Solve gram · z = d^r P(u_sample) for r = 1, 2, 3 at once: z (p, 3, c).
+    z = at_sample[1:].transpose(1, 0, 2).copy()
+    for i in range(p):
+        for k in range(i):
+            z[i] -= low[i, k] * z[k]
+    z /= dia[:, None, :]
+    for i in range(p - 1, -1, -1):
+        for k in range(i + 1, p):
+            z[i] -= low[k, i] * z[k]
+
+    # Weight rows: d^r fit / dt^r at the sample = sum_j (sum_m z[m, r] P_m(u_j)) x_j / half^r.
+    weights = np.einsum("mrc,mwc->rwc", z, basis)
+    for r in range(len(_ORDERS)):
+        weights[r] /= half_span_s ** _ORDERS[r]
+    return starts, weights
+
+
+def _derivatives_of_block(
+    t_s: np.ndarray, signals: np.ndarray, out: np.ndarray, lo: int, hi: int, degree: int
+) -> None:
+    """Fill out[:, :, lo:hi] (3, k, c) with the derivatives of signals (k, N) at samples lo..hi."""
+    window = min(WINDOW_SAMPLES, t_s.shape[0])
+    starts, weights = derivative_weights(t_s, np.arange(lo, hi), window, degree)
+    block = out[:, :, lo:hi]
+    block[...] = 0.0
+    centre = signals[:, lo:hi]  # (k, c)
+    for j in range(window):
+        rel = signals[:, starts + j] - centre  # (k, c): window sample j minus the sample
+        for r in range(len(_ORDERS)):
+            block[r] += weights[r, j] * rel
+
+
+def time_derivatives(
+    t_s: np.ndarray,
+    x: np.ndarray,
+    *,
+    chunk_samples: int = CHUNK_SAMPLES,
+    threads: int = THREADS,
+) -> Derivatives:
+    """Velocity, acceleration and jerk of x sampled at times t_s (uneven steps honoured).
+
+    t_s: (N,) strictly increasing, s, N >= 2; x: (N, k) or (N,) signals in any unit.
+    With N < WINDOW_SAMPLES the fit uses all N samples with degree min(FIT_DEGREE, N - 1):
+    N = 2 gives the difference quotient as velocity and zero acceleration and jerk.
+    Blocks of chunk_samples are independent, so the result does not depend on chunk_samples
+    or threads (numpy releases the GIL inside its loops, so threads share the work).
+    """
+    t_s = np.asarray(t_s, dtype=float)
+    x = np.asarray(x, dtype=float)
+    flat = x.ndim == 1
+    x2 = x[:, None] if flat else x
+    n = t_s.shape[0]
+    if t_s.ndim != 1 or n < 2 or x2.ndim != 2 or x2.shape[0] != n:
+        raise ValueError(f"need t_s (N,) with N >= 2 and x (N, k), got {t_s.shape}, {x.shape}")
+    degree = min(FIT_DEGREE, min(WINDOW_SAMPLES, n) - 1)
+    signals = np.ascontiguousarray(x2.T)  # (k, N): samples last, like the weights
+    out = np.empty((len(_ORDERS), signals.shape[0], n))
+    bounds = [(lo, min(lo + chunk_samples, n)) for lo in range(0, n, chunk_samples)]
+    if threads > 1 and len(bounds) > 1:
+        with ThreadPoolExecutor(max_workers=threads) as pool:
+            list(pool.map(lambda b: _derivatives_of_block(t_s, signals, out, *b, degree), bounds))
+    else:
+        for lo, hi in bounds:
+            _derivatives_of_block(t_s, signals, out, lo, hi, degree)
+    if flat:
+        return Derivatives(velocity=out[0, 0], acceleration=out[1, 0], jerk=out[2, 0])
+    return Derivatives(velocity=out[0].T, acceleration=out[1].T, jerk=out[2].T)
