@@ -252,7 +252,10 @@ def _pick_units(
     return chosen, units[chosen_units[0]]
 
 
-def _raise_unknown_unit_or_missing(names: list[str], stem: str, units: dict[str, float]) -> None:
+def _raise_unknown_unit_or_missing(
+    names: list[str], stem: str, units: dict[str, float]
+) -> NoReturn:
+    """No allowed column for stem: name one with the stem and a wrong unit, or say it is missing."""
     allowed = ", ".join(f"{stem}_{u}" for u in units)
     for name, unit in _unit_of(names, stem):
         if not unit:
@@ -277,7 +280,7 @@ def _map_columns(names: list[str]) -> _Columns:
     position = _pick_units(names, _AXES, _LENGTH_UNITS, "position")
     if position is None:
         _raise_unknown_unit_or_missing(names, "x", _LENGTH_UNITS)
-    p_names, length_scale = position  # type: ignore[misc]
+    p_names, length_scale = position
     quat_present = [n for n in _QUAT_COLUMNS if n in seen]
     rpy = _pick_units(names, _ANGLES, _ANGLE_UNITS, "orientation")
     if quat_present and rpy is not None:
