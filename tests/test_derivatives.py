@@ -153,3 +153,21 @@ def test_bad_shapes_are_refused():
         time_derivatives(np.array([0.0]), np.array([1.0]))
     with pytest.raises(ValueError, match=r"x \(N, k\)"):
         time_derivatives(np.arange(3.0), np.zeros((4, 2)))
+
+
+def test_even_step_shortcut_equals_the_general_fit():
+    """The even-step weights are the general fit's, so both paths agree to rounding."""
+    import reachgate.derivatives as d
+
+    t = np.arange(5000) * 1e-3 + 3.0
+    x = np.column_stack([np.sin(2 * np.pi * 1.3 * t), t**4 / 24])
+    fast = d.time_derivatives(t, x)
+    slow_rtol = d.EVEN_STEP_RTOL
+    try:
+        d.EVEN_STEP_RTOL = -1.0  # force the general path
+        general = d.time_derivatives(t, x)
+    finally:
+        d.EVEN_STEP_RTOL = slow_rtol
+    for name in ("velocity", "acceleration", "jerk"):
+        a, b = getattr(fast, name), getattr(general, name)
+        np.testing.assert_allclose(a, b, rtol=1e-7, atol=1e-7 * np.abs(b).max())
