@@ -23,7 +23,7 @@ import traceback
 from collections.abc import Callable, Iterable, Iterator, Sequence
 from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 from concurrent.futures.process import BrokenProcessPool
-from contextlib import closing
+from contextlib import ExitStack, closing
 from dataclasses import dataclass
 from datetime import UTC, datetime
 from pathlib import Path
@@ -294,48 +294,54 @@ def _run_local(
             pool.shutdown(wait=not broken, cancel_futures=True)
 
 
-def _run_cluster(
-    paths: list[str], settings: CheckSettings, robot_raw: bytes, label: str, address: str
-) -> Iterator[dict]:
-    """The workers of an existing Dask distributed scheduler (they must see the case paths)."""
+def _connect_cluster(address: str):
+    """A dask.distributed Client on an existing scheduler, or ReachgateError."""
     try:
-        from dask.distributed import Client, as_completed
+        from dask.distributed import Client
     except ImportError as error:
         raise ReachgateError(f"--cluster needs dask.distributed ({error})") from None
     try:
-        client = Client(address, timeout=CLUSTER_CONNECT_TIMEOUT_S)
+        return Client(address, timeout=CLUSTER_CONNECT_TIMEOUT_S)
     except (OSError, ValueError) as error:
         raise ReachgateError(f"--cluster {address}: cannot reach the scheduler ({error})") from None
+
+
+def _run_cluster(
+    paths: list[str], settings: CheckSettings, robot_raw: bytes, label: str, client
+) -> Iterator[dict]:
+    """The workers of an existing Dask distributed scheduler (they must see the case paths).
+
+    Closing the client (the caller does) cancels whatever is still queued.
+    """
+    from dask.distributed import as_completed
+
     token = hashlib.sha256(f"{os.getpid()} {time.time_ns()}".encode()).hexdigest()[:12]
     running: dict = {}
-    try:
-        threads = sum(client.nthreads().values()) or 1
-        window = IN_FLIGHT_PER_WORKER * threads
-        todo = list(reversed(list(enumerate(paths))))
-        pending = as_completed()
+    threads = sum(client.nthreads().values()) or 1
+    window = IN_FLIGHT_PER_WORKER * threads
+    todo = list(reversed(list(enumerate(paths))))
+    pending = as_completed(loop=client.loop)
 
-        def submit() -> None:
-            index, path = todo.pop()
-            future = client.submit(
-                check_case, path, settings, robot_raw, label, key=f"reachgate-{token}-{index}"
-            )
-            running[future.key] = path
-            pending.add(future)
+    def submit() -> None:
+        index, path = todo.pop()
+        future = client.submit(
+            check_case, path, settings, robot_raw, label, key=f"reachgate-{token}-{index}"
+        )
+        running[future.key] = path
+        pending.add(future)
 
-        while todo and len(running) < window:
+    while todo and len(running) < window:
+        submit()
+    for future in pending:
+        path = running.pop(future.key)
+        try:
+            result = future.result()
+        except Exception as error:  # a lost worker, a task the cluster gave up on
+            result = _error_result(path, f"the cluster failed it ({type(error).__name__})")
+        future.release()
+        yield result
+        if todo:
             submit()
-        for future in pending:
-            path = running.pop(future.key)
-            try:
-                result = future.result()
-            except Exception as error:  # a lost worker, a task the cluster gave up on
-                result = _error_result(path, f"the cluster failed it ({type(error).__name__})")
-            future.release()
-            yield result
-            if todo:
-                submit()
-    finally:
-        client.close()
 
 
 # -- the parent side -----------------------------------------------------------------------
@@ -437,6 +443,8 @@ def scan(
     cases the store already holds. Cases stored as errors are always tried again.
     Returns the summary of these cases, ranked worst first. Raises ReachgateError on bad input;
     KeyboardInterrupt leaves every finished case in the store.
+    Local workers are started with the "spawn" method, which imports the calling script
+    afresh: scripts that call scan() need the usual ``if __name__ == "__main__":`` guard.
     """
     settings = settings or CheckSettings()
     cases = discover_cases(case_paths)
@@ -455,7 +463,12 @@ def scan(
         "settings_json": settings_json,
     }
 
-    with Store(store_file) as store:
+    with ExitStack() as stack:
+        client = None
+        if cluster:
+            client = _connect_cluster(cluster)  # before the store: no run row if unreachable
+            stack.callback(client.close)
+        store = stack.enter_context(Store(store_file))
         names = {str(c): case_name(c, store_file) for c in cases}
         stored = {} if fresh else store.fingerprints()
         todo: list[str] = []
@@ -489,7 +502,7 @@ def scan(
         if todo:
             label = str(robot_file)
             results = (
-                _run_cluster(todo, settings, robot_raw, label, cluster)
+                _run_cluster(todo, settings, robot_raw, label, client)
                 if cluster
                 else _run_local(todo, settings, robot_raw, label, min(n_workers, len(todo)))
             )
