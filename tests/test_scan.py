@@ -302,6 +302,42 @@ def test_kill_9_then_resume_keeps_every_case_once_and_checks_none_twice(robot, t
     assert f"taken from the store unchanged: {len(before)}" in rerun.stdout
 
 
+def test_ctrl_c_stops_cleanly_with_exit_130_and_the_store_intact(robot, tmp_path):
+    folder = tmp_path / "cases"
+    folder.mkdir()
+    for k in range(60):
+        path = sway_case(robot, 0.1, 5000 + k, duration_s=10.0)
+        write_trajectory(folder / f"c{k:03d}.csv", path)
+    store = tmp_path / "int.sqlite"
+    command = [sys.executable, "-m", "reachgate", "scan", str(DEMO_ROBOT), str(folder)]
+    command += ["--store", str(store), "--workers", "2"]
+    proc = subprocess.Popen(
+        command,
+        stdout=subprocess.PIPE,
+        stderr=subprocess.PIPE,
+        text=True,
+        start_new_session=True,
+    )
+    try:
+        deadline = time.monotonic() + 60
+        while _count(store) < 3 and proc.poll() is None and time.monotonic() < deadline:
+            time.sleep(0.01)
+        assert proc.poll() is None, "the scan ended before it could be interrupted"
+        os.killpg(proc.pid, signal.SIGINT)  # what Ctrl-C in a terminal does
+        out, err = proc.communicate(timeout=30)
+    finally:
+        if proc.poll() is None:
+            os.killpg(proc.pid, signal.SIGKILL)
+    assert proc.returncode == 130
+    assert "interrupted" in err and "resume" in err and "Traceback" not in err
+    assert out == ""  # no summary of a batch that did not finish
+    db = sqlite3.connect(store)
+    assert db.execute("PRAGMA integrity_check").fetchone()[0] == "ok"
+    assert 3 <= db.execute("SELECT count(*) FROM cases").fetchone()[0] < 60
+    assert db.execute("SELECT finished_at FROM runs").fetchall() == [(None,)]
+    db.close()
+
+
 def _small_batch(robot, folder: Path, amplitudes, seed: int) -> list[Path]:
     folder.mkdir(parents=True, exist_ok=True)
     paths = []
