@@ -180,6 +180,23 @@ def test_corrupt_case_is_an_error_naming_the_file_and_the_scan_goes_on(batch):
     assert "corrupt.csv" in text and "errors:" in text
 
 
+def test_table_marks_slowdowns_that_leave_other_violations(batch):
+    text = render_summary(batch["summary"])
+    rows = {
+        line.split("|")[2].strip(): line
+        for line in text.splitlines()
+        if line.startswith("|") and "sway/" in line
+    }
+    for name, band in batch["bands"].items():
+        slow = rows[f"sway/{name}"].rstrip("|").split("|")[-1].strip()
+        case = next(c for c in batch["summary"].cases if c.name == f"sway/{name}")
+        if band == "rate":
+            assert slow == f"{case.slowdown:.3f}"  # time stretch clears every row
+        elif band == "reach":
+            assert slow in ("-", f"{case.slowdown:.3f}*") if case.slowdown else slow == "-"
+    assert "slow-down*: clears the speed, accel and jerk rows only" in text
+
+
 def test_counts_per_check_add_up_over_the_batch(batch):
     summary = batch["summary"]
     for kind, count in summary.counts.items():

@@ -23,14 +23,14 @@ import traceback
 from collections.abc import Callable, Iterable, Iterator, Sequence
 from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 from concurrent.futures.process import BrokenProcessPool
-from contextlib import ExitStack, closing
+from contextlib import ExitStack, closing, contextmanager
 from dataclasses import dataclass
 from datetime import UTC, datetime
 from pathlib import Path
 
 from reachgate import __version__
 from reachgate.check import CheckSettings, check
-from reachgate.checks import Check, Severity
+from reachgate.checks import RATE_CHECKS, Check, Severity
 from reachgate.errors import ReachgateError
 from reachgate.rail import rail_positions
 from reachgate.robot import Robot, load_robot, robot_from_dict
@@ -233,6 +233,26 @@ def _error_result(case_path: str, message: str) -> dict:
     }
 
 
+@contextmanager
+def _sigint_blocked() -> Iterator[None]:
+    """Block SIGINT while worker processes may be started, so that they inherit the block.
+
+    A Ctrl-C arriving meanwhile stays pending and is raised here on leaving: nothing is lost.
+    (The same way the standard library starts its resource tracker.)
+    """
+    if (
+        not hasattr(signal, "pthread_sigmask")
+        or threading.current_thread() is not threading.main_thread()
+    ):
+        yield
+        return
+    signal.pthread_sigmask(signal.SIG_BLOCK, {signal.SIGINT})
+    try:
+        yield
+    finally:
+        signal.pthread_sigmask(signal.SIG_UNBLOCK, {signal.SIGINT})
+
+
 def _may_submit(todo: list, running: dict, window: int, broken: bool) -> bool:
     """A case that was in flight when a worker died (a suspect) runs alone, so that a case
     that kills its worker cannot take the cases beside it down with it."""
@@ -269,12 +289,11 @@ def _run_local(
         broken = False
         try:
             while todo or running:
-                while _may_submit(todo, running, window, broken):
-                    path, deaths = todo.pop()
-                    running[pool.submit(task, path, settings, robot_raw, label)] = (
-                        path,
-                        deaths,
-                    )
+                with _sigint_blocked():  # workers start inside submit(): born deaf to Ctrl-C
+                    while _may_submit(todo, running, window, broken):
+                        path, deaths = todo.pop()
+                        future = pool.submit(task, path, settings, robot_raw, label)
+                        running[future] = (path, deaths)
                 if not running:
                     break
                 done, _ = wait(running, return_when=FIRST_COMPLETED)
@@ -544,6 +563,13 @@ def settings_text(settings: dict) -> str:
     return f"place {place} (m, deg); rail {rail}; lag {lag}, tolerance {tol}"
 
 
+def _stretch_leaves_rows(c: CaseResult) -> bool:
+    """True when the case has violations a uniform time stretch does not clear."""
+    return any(
+        v.severity is Severity.VIOLATION and v.check not in RATE_CHECKS for v in c.violations
+    )
+
+
 def _margin_text(c: CaseResult) -> str:
     if c.worst_margin is None:
         return "-"
@@ -568,6 +594,7 @@ def render_table(summary: ScanSummary, width: int = 120) -> str:
         highlight=False,
         emoji=False,
         markup=False,
+        soft_wrap=True,  # plain lines are not folded; tables keep the width
     )
     tally = summary.tally()
     console.print(f"reachgate {__version__} scan, results store {summary.store_path}")
@@ -591,8 +618,12 @@ def render_table(summary: ScanSummary, width: int = 120) -> str:
     for title in titles:
         table.add_column(title, justify="right" if title == "#" else "left")
     table.add_column("slow-down", justify="right")
+    starred = False
     for rank, c in enumerate(summary.cases, start=1):
         slow = "-" if c.slowdown is None or c.verdict is CaseVerdict.ERROR else f"{c.slowdown:.3f}"
+        if c.slowdown is not None and _stretch_leaves_rows(c):
+            slow += "*"
+            starred = True
         table.add_row(
             str(rank),
             c.name,
@@ -604,6 +635,10 @@ def render_table(summary: ScanSummary, width: int = 120) -> str:
         )
     console.print(table)
     console.print("margins: fraction of a limit left (1 unused, 0 at it, < 0 beyond)")
+    if starred:
+        console.print(
+            "slow-down*: clears the speed, accel and jerk rows only; other violations remain"
+        )
     if summary.counts:
         counts = Table(box=box.ASCII, pad_edge=False)
         for title in ("check", "violation rows", "near rows", "failing cases"):
