@@ -476,13 +476,16 @@ def test_cli_exit_codes_and_report_reprints_without_checking(robot, tmp_path):
         (["scan", "--report", "--store", "{tmp}/none.sqlite"], "no such results store"),
         (["scan", "--report", "--store", "{tmp}/robot.toml"], "not a usable results store"),
         (["scan", str(DEMO_ROBOT)], "at least one case"),
+        (["scan", str(DEMO_ROBOT), "{tmp}/empty", "--workers", "0"], "--workers"),
+        (["scan", str(DEMO_ROBOT), "{tmp}/empty", "--workers", "2", "--cluster", "x"], "give one"),
     ],
 )
 def test_cli_bad_input_exits_2_with_one_line(tmp_path, args, message):
     (tmp_path / "empty").mkdir()
     (tmp_path / "empty" / "a.csv").write_text("t_s,x_m\n")
     (tmp_path / "robot.toml").write_text("name = 'x'\n[[joints]]\nname = 3\n")
-    if "--rail-at" not in args and "robot.toml" not in " ".join(args):
+    keep_case = {"--rail-at", "--workers"} & set(args) or "robot.toml" in " ".join(args)
+    if not keep_case:
         (tmp_path / "empty" / "a.csv").unlink()
     result = runner.invoke(app, [a.replace("{tmp}", str(tmp_path)) for a in args])
     assert result.exit_code == 2, result.output

@@ -475,6 +475,8 @@ def scan(
     _validate_settings(robot, settings)
     if workers is not None and workers < 1:
         raise ReachgateError(f"--workers: must be at least 1, got {workers}")
+    if workers is not None and cluster:
+        raise ReachgateError("--workers and --cluster: give one (the cluster has its own workers)")
     settings_json = json.dumps(settings.as_dict(), sort_keys=True)
     common = {
         "robot_name": robot.name,
