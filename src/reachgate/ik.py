@@ -85,9 +85,13 @@ def continuous_angles(theta: np.ndarray, reference: np.ndarray) -> np.ndarray:
 
     (N, k) angles, (k,) reference -> (N, k); each sample is within π of the previous one.
     """
-    unwrapped = np.unwrap(theta, axis=0)
-    turns = np.round((reference - unwrapped[0]) / TWO_PI)
-    return unwrapped + TWO_PI * turns
+    rows = theta.T  # (k, N): contiguous when theta is a transposed view, as the solvers give
+    turns = np.round(np.diff(rows, axis=1) / TWO_PI)
+    out = np.empty(rows.shape)
+    out[:, 0] = rows[:, 0]
+    out[:, 1:] = rows[:, 1:] - TWO_PI * np.cumsum(turns, axis=1)
+    out += TWO_PI * np.round((reference - out[:, 0]) / TWO_PI)[:, None]
+    return out.T  # (N, k), each column contiguous
 
 
 def _fits_range(theta: np.ndarray, lower: np.ndarray, upper: np.ndarray) -> np.ndarray:
@@ -128,7 +132,7 @@ def solve_trajectory(
         return parts[0]
     first = parts[0]
     return PathSolution(
-        q=np.concatenate([p.q for p in parts]),
+        q=np.concatenate([p.q.T for p in parts], axis=1).T,
         solver=first.solver,
         branch=first.branch,
         reach_excess_m=np.concatenate([p.reach_excess_m for p in parts]),
@@ -182,7 +186,12 @@ def solve_path(
         other_fits = np.zeros(n_samples, dtype=bool)
         kind, kept = SolverKind.NUMERIC, None
 
-    q = q_arm if rail_m is None else np.column_stack([rail_m, q_arm])
+    # axis-major storage: q[:, i] is contiguous, which the column-wise FK and checks read
+    q_rows = np.empty((robot.n_axes, n_samples))
+    q_rows[-chain.n :] = q_arm.T
+    if rail_m is not None:
+        q_rows[0] = rail_m
+    q = q_rows.T
     achieved = forward(robot, q)
     position_error = np.linalg.norm(achieved[:, :3, 3] - cell_T_tool[:, :3, 3], axis=1)
     orientation_error = rotation_angle(

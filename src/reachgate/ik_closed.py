@@ -203,7 +203,7 @@ class SphericalWristSolver:
         theta6 = np.arctan2(-w * s4 * r21, w * s4 * r20)
 
         # θ1-θ3 may lie a turn outside (-π, π]: every user unwraps or takes them modulo 2π
-        theta = np.stack([theta1, theta2, theta3, theta4, theta5, theta6], axis=1)
+        theta = np.stack([theta1, theta2, theta3, theta4, theta5, theta6]).T  # (N, 6) view
         return WristSolution(
             theta=theta,
             reach_excess_m=np.maximum(np.maximum(shell_excess_m, inside_cylinder_m), 0.0),
