@@ -1,9 +1,11 @@
-"""Disturbance cases: the Dryden model against MIL-F-8785C, exact discretisation, case files, CLI.
+"""Disturbance cases: Dryden (MIL-F-8785C), our vehicle model, exact steps, files and CLI.
 
 Outside sources: MIL-F-8785C (low-altitude scale lengths and intensities, the Dryden spectra
 and rate spectra, its worked figure at h = 100 ft), analytic results (the Ornstein-Uhlenbeck
-transition of the first-order u filter, the washout variance integral, the sampling theorem),
-scipy (signal.freqs, signal.welch, integrate.quad / quad_vec, linalg.expm, stats.chi2).
+transition of the first-order u filter, the response and washout gains and their variance
+integrals, the variance of a sample variance, the sampling theorem), scipy (signal.freqs,
+signal.welch, signal.savgol_coeffs, integrate.quad / quad_vec / simpson, linalg.expm,
+stats.chi2 / norm).
 """
 
 from __future__ import annotations
@@ -17,8 +19,9 @@ from scipy import integrate, linalg, signal, stats
 from typer.testing import CliRunner
 
 import reachgate
-from reachgate import disturb
+from reachgate import disturb, dryden, exact_steps
 from reachgate.cli import app
+from reachgate.derivatives import time_derivatives
 from reachgate.errors import ReachgateError
 from reachgate.trajectory import Trajectory, load_trajectory, write_trajectory
 from reachgate.transforms import quat_to_matrix, rotation_log
@@ -82,7 +85,7 @@ def mil_rate_spectra(omega, s):
 
 def test_worked_figure_at_100_ft_matches_mil_f_8785c():
     # MIL-F-8785C worked figure: W20 = 30 kt, h = 100 ft -> Lu = 505.2 ft, σu/σw = 1.716.
-    s = disturb.dryden_settings(100 * FT, 20.0, intensity="moderate")
+    s = dryden.dryden_settings(100 * FT, 20.0, intensity="moderate")
     assert s.scale_u_m / FT == pytest.approx(505.2, abs=0.05)
     assert s.sigma_u_m_s / s.sigma_w_m_s == pytest.approx(1.716, abs=5e-4)
     assert s.scale_w_m / FT == pytest.approx(100.0, rel=1e-12)
@@ -92,16 +95,16 @@ def test_worked_figure_at_100_ft_matches_mil_f_8785c():
 @pytest.mark.parametrize("h_ft", [5.0, 20.0, 100.0, 300.0, 999.0])
 def test_scale_lengths_and_sigma_ratio_follow_mil_f_8785c_formulas(h_ft):
     # MIL-F-8785C low altitude: Lu = Lv = h/(0.177 + 0.000823 h)^1.2, Lw = h, ratio ^0.4.
-    lu, lv, lw = disturb.low_altitude_scale_lengths_m(h_ft * FT)
+    lu, lv, lw = dryden.low_altitude_scale_lengths_m(h_ft * FT)
     ref = mil_scale_lengths_ft(h_ft)
     np.testing.assert_allclose(np.array([lu, lv, lw]) / FT, ref, rtol=1e-12)
-    assert disturb.low_altitude_sigma_ratio(h_ft * FT) == pytest.approx(mil_sigma_ratio(h_ft))
+    assert dryden.low_altitude_sigma_ratio(h_ft * FT) == pytest.approx(mil_sigma_ratio(h_ft))
 
 
 @pytest.mark.parametrize(("intensity", "w20_kt"), [("light", 15), ("moderate", 30), ("severe", 45)])
 def test_named_intensities_set_sigma_w_to_a_tenth_of_w20(intensity, w20_kt):
     # MIL-F-8785C: σw = 0.1 W20; W20 = 15, 30, 45 kt for light, moderate, severe.
-    s = disturb.dryden_settings(50.0, 15.0, intensity=intensity)
+    s = dryden.dryden_settings(50.0, 15.0, intensity=intensity)
     assert s.sigma_w_m_s == pytest.approx(0.1 * w20_kt * KT, rel=1e-12)
     assert (
         s.sigma_v_m_s
@@ -113,19 +116,19 @@ def test_named_intensities_set_sigma_w_to_a_tenth_of_w20(intensity, w20_kt):
 # --- spectra and filters -----------------------------------------------------------------
 
 
-SETTINGS = disturb.dryden_settings(100 * FT, 20.0, intensity="moderate", wingspan_m=1.0)
+SETTINGS = dryden.dryden_settings(100 * FT, 20.0, intensity="moderate", wingspan_m=1.0)
 
 
 def test_spectra_match_mil_f_8785c_and_integrate_to_sigma_squared():
     # MIL-F-8785C Dryden spectra; one-sided in ω: ∫0^∞ Φ dω = σ² (scipy quad).
     omega = np.logspace(-4, 3, 60)
     np.testing.assert_allclose(
-        disturb.dryden_psd(omega, SETTINGS), mil_temporal_spectra(omega, SETTINGS), rtol=1e-12
+        dryden.dryden_psd(omega, SETTINGS), mil_temporal_spectra(omega, SETTINGS), rtol=1e-12
     )
     sig = [SETTINGS.sigma_u_m_s, SETTINGS.sigma_v_m_s, SETTINGS.sigma_w_m_s]
     for axis in range(3):
         area, _ = integrate.quad(
-            lambda w, a=axis: disturb.dryden_psd(np.array([w]), SETTINGS)[0, a], 0, np.inf,
+            lambda w, a=axis: dryden.dryden_psd(np.array([w]), SETTINGS)[0, a], 0, np.inf,
             limit=400,
         )  # fmt: skip
         assert area == pytest.approx(sig[axis] ** 2, rel=1e-6)
@@ -137,13 +140,58 @@ def test_shaping_filters_reproduce_the_mil_f_8785c_spectra():
     reference = np.column_stack(
         [mil_temporal_spectra(omega, SETTINGS), mil_rate_spectra(omega, SETTINGS)]
     )
-    filters = disturb.shaping_filters(SETTINGS)
+    filters = dryden.shaping_filters(SETTINGS)
     for col, name in enumerate("uvwpqr"):
         _, h = signal.freqs(*filters[name], worN=omega)
         np.testing.assert_allclose(np.abs(h) ** 2, reference[:, col], rtol=1e-9, err_msg=name)
     np.testing.assert_allclose(
-        disturb.dryden_rate_psd(omega, SETTINGS), reference[:, 3:], rtol=1e-12
+        dryden.dryden_rate_psd(omega, SETTINGS), reference[:, 3:], rtol=1e-12
     )
+
+
+def response_gain_sq(omega, response_hz):
+    """|H(jω)|² of the critically damped second-order low-pass ωn² / (s + ωn)² (analytic)."""
+    wn = 2 * math.pi * response_hz
+    return wn**4 / (omega**2 + wn**2) ** 2
+
+
+def washout_gain_sq(omega, washout_s):
+    """|1 / (jω + 1/τ)|² of the washout integrator dx/dt = v - x/τ (analytic)."""
+    return 1.0 / (omega**2 + washout_s**-2)
+
+
+@pytest.mark.parametrize("response_hz", [0.3, 1.5])
+def test_response_filter_is_the_critically_damped_second_order_low_pass(response_hz):
+    # Analytic: |ωn²/(jω + ωn)²|² = ωn⁴/(ω² + ωn²)²; unit gain at 0, 1/2 and -180° at ωn,
+    # half power at ωn·sqrt(√2 - 1) (scipy.signal.freqs of the realisation the model runs).
+    omega = np.logspace(-2, 3, 80)
+    num, den = disturb.response_filter(response_hz)
+    _, h = signal.freqs(num, den, worN=omega)
+    np.testing.assert_allclose(np.abs(h) ** 2, response_gain_sq(omega, response_hz), rtol=1e-9)
+    wn = 2 * math.pi * response_hz
+    _, h = signal.freqs(num, den, worN=[1e-9 * wn, wn, wn * math.sqrt(math.sqrt(2) - 1)])
+    np.testing.assert_allclose(np.abs(h), [1.0, 0.5, math.sqrt(0.5)], rtol=1e-9)
+    assert np.angle(h[1]) == pytest.approx(-math.pi / 2, abs=1e-9)  # each stage -45°
+
+
+def test_displacement_filters_are_the_gust_spectra_through_response_and_washout():
+    # MIL-F-8785C spectra times the analytic response and washout gains (scipy.signal.freqs).
+    # Far above the corners |H|² falls as ω⁻⁸ (gust filters ω⁻², response ω⁻⁴, washout ω⁻²),
+    # so the jerk spectrum ω⁶|H|² falls as ω⁻² and the jerk variance is finite.
+    omega = np.logspace(-3, 3, 80)
+    washout_s, response_hz = 0.3, 0.8
+    filters = disturb.displacement_filters(SETTINGS, washout_s, response_hz)
+    reference = np.column_stack(
+        [mil_temporal_spectra(omega, SETTINGS), mil_rate_spectra(omega, SETTINGS)]
+    )
+    reference *= (response_gain_sq(omega, response_hz) * washout_gain_sq(omega, washout_s))[:, None]
+    for col, name in enumerate(disturb.DISPLACEMENT_NAMES):
+        num, den = filters[name]
+        _, h = signal.freqs(num, den, worN=omega)
+        np.testing.assert_allclose(np.abs(h) ** 2, reference[:, col], rtol=1e-7, err_msg=name)
+        _, h = signal.freqs(num, den, worN=[300.0, 1000.0])  # far above every corner
+        slope = math.log(abs(h[1] / h[0]) ** 2) / math.log(1000.0 / 300.0)
+        assert slope == pytest.approx(-8.0, abs=0.05), name
 
 
 # --- exact discretisation ----------------------------------------------------------------
@@ -151,8 +199,8 @@ def test_shaping_filters_reproduce_the_mil_f_8785c_spectra():
 
 def test_van_loan_step_maps_equal_the_integrals_they_stand_for():
     # Ad = expm(A dt) and Qd = ∫0^dt e^{As} Qc e^{Aᵀs} ds, by scipy expm and quad_vec.
-    channel = disturb._channels(SETTINGS, washout_s=0.7)["wq"]
-    qc = disturb.WHITE_NOISE_INTENSITY * np.outer(channel.b, channel.b)
+    channel = disturb._channels(SETTINGS, washout_s=0.7, response_hz=1.5)["wq"]
+    qc = dryden.WHITE_NOISE_INTENSITY * np.outer(channel.b, channel.b)
     dt = np.array([0.05, 0.9])
     ad, ld = disturb._discretise(channel, dt)
     for k, step in enumerate(dt):
@@ -173,7 +221,7 @@ def test_prefix_scan_equals_the_step_by_step_recursion():
     expected = [x0]
     for k in range(steps):  # slow reference
         expected.append(ad[k] @ expected[-1] + w[k])
-    np.testing.assert_allclose(disturb._propagate(ad, w, x0), np.array(expected), rtol=1e-9,
+    np.testing.assert_allclose(exact_steps.propagate(ad, w, x0), np.array(expected), rtol=1e-9,
                                atol=1e-9)  # fmt: skip
 
 
@@ -200,19 +248,20 @@ GUST_SAMPLES = 2**17  # 32768 s ≈ 4300 Lu and 21500 Lw of flight at 20 m/s
 RATE_DT_S = 0.02
 RATE_SAMPLES = 2**16
 WASHOUT_S = 0.5
+RESPONSE_HZ = 0.5
 WELCH_SEGMENT = {"gust": 2048, "rate": 1024}
 
 
 @pytest.fixture(scope="module")
 def gust_run():
     t = np.arange(GUST_SAMPLES) * GUST_DT_S
-    return disturb.dryden_response(t, SETTINGS, WASHOUT_S, seed=303)
+    return disturb.dryden_response(t, SETTINGS, WASHOUT_S, seed=303, response_hz=RESPONSE_HZ)
 
 
 @pytest.fixture(scope="module")
 def rate_run():
     t = np.arange(RATE_SAMPLES) * RATE_DT_S
-    return disturb.dryden_response(t, SETTINGS, WASHOUT_S, seed=304)
+    return disturb.dryden_response(t, SETTINGS, WASHOUT_S, seed=304, response_hz=RESPONSE_HZ)
 
 
 def test_gust_standard_deviations_are_within_5_percent_of_sigma(gust_run):
@@ -278,19 +327,116 @@ def test_rate_welch_psd_lies_in_the_chi_square_band_of_the_rate_spectra(rate_run
 
 
 def washout_std(spectrum, axis):
-    """Analytic std of x with dx/dt = g - x/τ: var = ∫0^∞ Φ(ω) / (ω² + τ⁻²) dω."""
+    """Analytic std of x with dx/dt = H·g - x/τ: var = ∫0^∞ Φ(ω) |H|² / (ω² + τ⁻²) dω."""
     value, _ = integrate.quad(
-        lambda w: spectrum(np.array([w]))[0, axis] / (w**2 + WASHOUT_S**-2), 0, np.inf, limit=400
-    )
+        lambda w: spectrum(np.array([w]))[0, axis] * response_gain_sq(w, RESPONSE_HZ)
+        * washout_gain_sq(w, WASHOUT_S), 0, np.inf, limit=400,
+    )  # fmt: skip
     return math.sqrt(value)
 
 
-def test_displacement_and_angle_spread_match_the_washout_integrals(gust_run, rate_run):
-    # Our washout model: displacement/angle std = the analytic variance integral above.
+def test_displacement_and_angle_spread_match_the_model_integrals(gust_run, rate_run):
+    # Our response and washout model: displacement/angle std = the variance integral above.
     displacement = [washout_std(lambda w: mil_temporal_spectra(w, SETTINGS), a) for a in range(3)]
     np.testing.assert_allclose(gust_run.displacement_m.std(axis=0), displacement, rtol=0.05)
     angle = [washout_std(lambda w: mil_rate_spectra(w, SETTINGS), a) for a in range(3)]
     np.testing.assert_allclose(rate_run.angle_rad.std(axis=0), angle, rtol=0.05)
+
+
+# --- the case's acceleration and jerk: finite and independent of the sampling rate ---------
+
+CASE_RATES_HZ = (250, 1000)
+CASE_RUN_S = 120.0
+CASE_COUNT = 5  # 5 x 118 s per rate: accel RMS within ~1.8 %, jerk within ~0.6-1 % (1 sigma)
+CASE_END_S = 0.1  # the last samples' one-sided derivative windows are left out
+RATE_REL_TOL = 0.10  # brief: std at 250 Hz and at 1000 Hz within ~10 % of each other
+CASE_SETTINGS = dryden.dryden_settings(
+    dryden.DEFAULT_ALTITUDE_M, dryden.DEFAULT_AIRSPEED_M_S, intensity="moderate"
+)
+
+
+def still_nominal(fs_hz):
+    """A nominal that holds one pose (not the identity) for CASE_RUN_S at fs_hz, even steps."""
+    n = round(fs_hz * CASE_RUN_S) + 1
+    t = np.arange(n) / fs_hz
+    return Trajectory.from_arrays(
+        t, np.tile([1.0, 0.5, 2.0], (n, 1)), rpy_rad=np.tile([0.1, -0.2, 0.3], (n, 1)),
+        name="still.csv",
+    )  # fmt: skip
+
+
+@pytest.fixture(scope="module")
+def case_derivatives():
+    """{fs: (acceleration, jerk)}, each (M, 6): x, y, z (m) and the rotation vector θ (rad)
+    of case minus nominal, after the fade-in, estimated by reachgate.derivatives, pooled."""
+    out = {}
+    for fs, seed in zip(CASE_RATES_HZ, (401, 402), strict=True):
+        nominal = still_nominal(fs)
+        t = nominal.t_s
+        keep = (t > disturb.FADE_IN_S) & (t < t[-1] - CASE_END_S)
+        nominal_R_T = np.swapaxes(quat_to_matrix(nominal.scenario_q_wxyz), -1, -2)
+        acc, jerk = [], []
+        for case in disturb.make_disturbance_cases(nominal, CASE_COUNT, seed):
+            theta = rotation_log(quat_to_matrix(case.trajectory.scenario_q_wxyz) @ nominal_R_T)
+            d = time_derivatives(t, np.hstack([case.trajectory.scenario_p_m - nominal.scenario_p_m,
+                                               theta]))  # fmt: skip
+            acc.append(d.acceleration[keep])
+            jerk.append(d.jerk[keep])
+        out[fs] = (np.vstack(acc), np.vstack(jerk))
+    return out
+
+
+def case_spectrum_integrals(fs_hz, order):
+    """For the derivative of `order` estimated at fs_hz: the true variance ∫ω^2r Φx dω, the
+    estimator's expected variance ∫|G|²Φx dω and ∫(|G|²Φx)² dω, each (6,).
+
+    Φx = MIL-F-8785C spectrum · |response|² · |washout|² (our model, library defaults); G is
+    the 7-point degree-4 Savitzky-Golay derivative filter on even steps (scipy
+    signal.savgol_coeffs), the interior fit of reachgate.derivatives. Simpson in log ω.
+    """
+    u = np.linspace(math.log(1e-4), math.log(1e6), 200_001)
+    omega = np.exp(u)
+    phi = np.column_stack(
+        [mil_temporal_spectra(omega, CASE_SETTINGS), mil_rate_spectra(omega, CASE_SETTINGS)]
+    )
+    phi *= (response_gain_sq(omega, disturb.DEFAULT_RESPONSE_HZ)
+            * washout_gain_sq(omega, disturb.DEFAULT_WASHOUT_S))[:, None]  # fmt: skip
+    coeffs = signal.savgol_coeffs(7, 4, deriv=order, delta=1.0 / fs_hz, use="dot")
+    gain_sq = np.abs(np.exp(1j * np.outer(omega, np.arange(-3, 4)) / fs_hz) @ coeffs) ** 2
+
+    def area(f):
+        return integrate.simpson(f * omega[:, None], x=u, axis=0)
+
+    return (area(omega[:, None] ** (2 * order) * phi), area(gain_sq[:, None] * phi),
+            area((gain_sq[:, None] * phi) ** 2))  # fmt: skip
+
+
+def test_case_acceleration_and_jerk_do_not_depend_on_the_sampling_rate(case_derivatives):
+    # Brief: the RMS acceleration and jerk of a case at 250 Hz and 1000 Hz agree within 10 %
+    # (without the vehicle response the acceleration alone differed by a factor of 2 = √4).
+    for k in range(2):
+        rms = [np.sqrt(np.mean(case_derivatives[fs][k] ** 2, axis=0)) for fs in CASE_RATES_HZ]
+        np.testing.assert_allclose(rms[0], rms[1], rtol=RATE_REL_TOL, err_msg=f"derivative {k}")
+
+
+def test_case_acceleration_and_jerk_match_the_spectrum_through_the_model(case_derivatives):
+    # Analytic: the estimate's mean square is ∫|G|²Φx dω (see case_spectrum_integrals). Its
+    # sampling error: a Gaussian process's mean square over T has relative variance
+    # 2π∫Φ²dω / (T (∫Φ dω)²) (Parseval on the autocovariance), so the RMS has half that
+    # relative error; the band is the normal quantile for FALSE_ALARM over all comparisons.
+    checks = len(CASE_RATES_HZ) * 2 * 6
+    z = stats.norm.ppf(1 - FALSE_ALARM / (2 * checks))
+    for fs in CASE_RATES_HZ:
+        kept_s = CASE_COUNT * (CASE_RUN_S - disturb.FADE_IN_S - CASE_END_S)
+        for k, order in enumerate((2, 3)):
+            true_var, expected, squared = case_spectrum_integrals(fs, order)
+            rel_se = 0.5 * np.sqrt(2 * math.pi * squared / kept_s) / expected
+            rms = np.sqrt(np.mean(case_derivatives[fs][k] ** 2, axis=0))
+            ratio = rms / np.sqrt(expected)
+            assert np.all(np.abs(ratio - 1) < z * rel_se), (fs, order, ratio, z * rel_se)
+            # The estimator sees nearly all of the true derivative: finite, and rate-free up to
+            # the ω⁻² jerk tail beyond the fit's pass band (at most ~7 % at 250 Hz).
+            assert np.all((np.sqrt(expected / true_var) > 0.9) & (expected <= true_var * 1.001))
 
 
 # --- cases and files -----------------------------------------------------------------------
@@ -332,10 +478,11 @@ def header(path):
 def test_each_file_header_records_how_it_was_made(tmp_path):
     nominal = nominal_path()
     cases = disturb.make_disturbance_cases(
-        nominal, 2, 21, intensity="light", airspeed_m_s=12.0, altitude_m=40.0, washout_s=0.8
-    )
+        nominal, 2, 21, intensity="light", airspeed_m_s=12.0, altitude_m=40.0, washout_s=0.8,
+        response_hz=1.25,
+    )  # fmt: skip
     paths = disturb.write_disturbance_cases(cases, tmp_path, "glide")
-    s = disturb.dryden_settings(40.0, 12.0, intensity="light")
+    s = dryden.dryden_settings(40.0, 12.0, intensity="light")
     for index, (case, path) in enumerate(zip(cases, paths, strict=True), start=1):
         h = header(path)
         assert h["made_by"] == f"reachgate {reachgate.__version__} perturb"
@@ -347,23 +494,51 @@ def test_each_file_header_records_how_it_was_made(tmp_path):
         assert (float(h["airspeed_m_s"]), float(h["altitude_m"]), float(h["washout_s"])) == (
             12.0, 40.0, 0.8,
         )  # fmt: skip
+        assert float(h["response_hz"]) == 1.25
+        assert float(h["fade_in_s"]) == disturb.FADE_IN_S
     assert cases[0].case_seed != cases[1].case_seed
 
 
 def test_case_seed_in_the_header_regenerates_that_case():
     nominal = nominal_path()
     case = disturb.make_disturbance_cases(nominal, 3, 31, washout_s=0.6)[2]
-    s = disturb.dryden_settings(disturb.DEFAULT_ALTITUDE_M, disturb.DEFAULT_AIRSPEED_M_S)
+    s = dryden.dryden_settings(dryden.DEFAULT_ALTITUDE_M, dryden.DEFAULT_AIRSPEED_M_S)
     response = disturb.dryden_response(nominal.t_s, s, 0.6, case.case_seed)
+    fade = disturb.fade_in(nominal.t_s - nominal.t_s[0])[:, None]
     np.testing.assert_allclose(
-        case.trajectory.scenario_p_m - nominal.scenario_p_m, response.displacement_m, atol=1e-12
-    )
-    # Orientation: R_case = Exp(θ) · R_nominal, θ the washout-integrated rates (our model).
+        case.trajectory.scenario_p_m - nominal.scenario_p_m, fade * response.displacement_m,
+        atol=1e-12,
+    )  # fmt: skip
+    # Orientation: R_case = Exp(fade·θ) · R_nominal, θ the washout-integrated rates (our model).
     r_case = quat_to_matrix(case.trajectory.scenario_q_wxyz)
     r_nominal = quat_to_matrix(nominal.scenario_q_wxyz)
     theta = rotation_log(r_case @ np.swapaxes(r_nominal, -1, -2))
-    np.testing.assert_allclose(theta, response.angle_rad, atol=1e-9)
-    assert np.abs(response.angle_rad).max() > 1e-3  # the comparison is not between zeros
+    np.testing.assert_allclose(theta, fade * response.angle_rad, atol=1e-9)
+    assert np.abs(fade * response.angle_rad).max() > 1e-3  # the comparison is not between zeros
+
+
+def test_fade_in_is_a_septic_smoothstep_flat_to_third_order_at_both_ends():
+    # Analytic: 35u⁴ - 84u⁵ + 70u⁶ - 20u⁷ rises from 0 to 1 with derivatives 1-3 zero at both
+    # ends, so a faded case has no step in speed, acceleration or jerk.
+    smoothstep = np.polynomial.Polynomial([0, 0, 0, 0, 35, -84, 70, -20])
+    for order in (1, 2, 3):
+        assert smoothstep.deriv(order)(0.0) == 0.0 and smoothstep.deriv(order)(1.0) == 0.0
+    t = np.linspace(-1.0, 4.0, 501)
+    expected = np.where(t < 0, 0.0, np.where(t > 2.5, 1.0, smoothstep(np.clip(t / 2.5, 0, 1))))
+    np.testing.assert_allclose(disturb.fade_in(t, 2.5), expected, rtol=0, atol=1e-14)
+
+
+def test_a_case_starts_with_the_nominal_speed_and_acceleration():
+    # Our model: a case is the nominal plus the faded response, so at t = 0 the case moves
+    # as the nominal does (a step in speed would be asked of an arm and rail at rest there).
+    nominal = nominal_path()
+    (case,) = disturb.make_disturbance_cases(nominal, 1, 71)
+    offset = case.trajectory.scenario_p_m - nominal.scenario_p_m
+    d = time_derivatives(nominal.t_s, offset)
+    later = nominal.t_s > disturb.FADE_IN_S
+    for name in ("velocity", "acceleration"):
+        values = getattr(d, name)
+        assert np.all(np.abs(values[0]) < 1e-3 * np.abs(values[later]).max(axis=0)), name
 
 
 def test_a_case_does_not_depend_on_how_many_cases_were_made():
@@ -413,6 +588,9 @@ def test_disturbance_scales_linearly_with_sigma_and_starts_on_the_nominal_pose()
         ({"altitude_m": 400.0}, "altitude"),
         ({"washout_s": 0.0}, "washout"),
         ({"washout_s": float("nan")}, "washout"),
+        ({"response_hz": 0.0}, "response_hz"),
+        ({"response_hz": float("inf")}, "response_hz"),
+        ({"response_hz": "fast"}, "response_hz"),
         ({"intensity": "stormy"}, "intensity"),
         ({"sigma_m_s": 1.0}, "intensity or sigma"),  # both given (intensity defaults)
         ({"intensity": None}, "intensity or sigma"),  # neither given
@@ -441,9 +619,10 @@ def test_perturb_command_writes_the_cases_beside_the_nominal(tmp_path):
     assert len(result.stdout.splitlines()) == 1 and "3 disturbance cases" in result.stdout
     h = header(written[0])  # CLI defaults are the library's defaults
     assert h["intensity"] == "moderate"
-    assert float(h["airspeed_m_s"]) == disturb.DEFAULT_AIRSPEED_M_S
-    assert float(h["altitude_m"]) == disturb.DEFAULT_ALTITUDE_M
+    assert float(h["airspeed_m_s"]) == dryden.DEFAULT_AIRSPEED_M_S
+    assert float(h["altitude_m"]) == dryden.DEFAULT_ALTITUDE_M
     assert float(h["washout_s"]) == disturb.DEFAULT_WASHOUT_S
+    assert float(h["response_hz"]) == disturb.DEFAULT_RESPONSE_HZ
     assert load_trajectory(written[2]).n_samples == 400
 
 
@@ -451,10 +630,11 @@ def test_perturb_command_honours_out_and_sigma(tmp_path):
     nominal = tmp_path / "glide.csv"
     write_trajectory(nominal, nominal_path())
     out = tmp_path / "cases"
-    result = runner.invoke(app, ["perturb", str(nominal), "--count", "2", "--seed", "7",
-                                 "--sigma", "0.3", "--out", str(out)])  # fmt: skip
+    options = ["--sigma", "0.3", "--response-hz", "1.25", "--out", str(out)]
+    result = runner.invoke(app, ["perturb", str(nominal), "--count", "2", "--seed", "7", *options])
     assert result.exit_code == 0, result.output
-    assert float(header(out / "glide_0002.csv")["sigma_w_m_s"]) == 0.3
+    h = header(out / "glide_0002.csv")
+    assert (float(h["sigma_w_m_s"]), float(h["response_hz"])) == (0.3, 1.25)
 
 
 @pytest.mark.parametrize(
@@ -464,6 +644,8 @@ def test_perturb_command_honours_out_and_sigma(tmp_path):
         (["--intensity", "light", "--sigma", "1"], "intensity or sigma"),
         (["--altitude", "500"], "altitude"),
         (["--count", "0"], "count"),
+        (["--response-hz", "0"], "response_hz"),
+        (["--response-hz", "-2"], "response_hz"),
     ],
 )
 def test_perturb_command_bad_option_exits_2_with_one_line(tmp_path, args, named):

@@ -181,6 +181,10 @@ def perturb_command(
     ] = 10.0,
     washout: Annotated[
         float, typer.Option("--washout", help="Station-keeping washout time constant, s.")
+    ] = 0.2,
+    response_hz: Annotated[
+        float,
+        typer.Option("--response-hz", help="Natural frequency of the vehicle's response, Hz."),
     ] = 0.5,
     out: Annotated[
         Path | None, typer.Option("--out", help="Folder for the cases (default NOMINAL_cases).")
@@ -197,6 +201,7 @@ def perturb_command(
         lambda: make_disturbance_cases(
             path, count, seed, intensity=intensity, sigma_m_s=sigma,
             airspeed_m_s=airspeed, altitude_m=altitude, washout_s=washout,
+            response_hz=response_hz,
         )
     )  # fmt: skip
     out_dir = out if out is not None else nominal.parent / f"{nominal.stem}_cases"
