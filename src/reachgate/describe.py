@@ -121,7 +121,9 @@ def describe_robot(robot: Robot) -> str:
     console.print(
         f"thresholds: position margin {math.degrees(th.position_margin_rad):.2f} deg / "
         f"{th.position_margin_m * 1000:.1f} mm, rate margin {th.rate_margin_fraction:.0%}, "
-        f"wrist {math.degrees(th.wrist_min_rad):.1f} deg, elbow {math.degrees(th.elbow_min_rad):.1f} deg, "
-        f"shoulder {th.shoulder_min_m * 1000:.0f} mm, manipulability floor {th.manipulability_min:g}"
+        f"wrist {math.degrees(th.wrist_min_rad):.1f} deg, "
+        f"elbow {math.degrees(th.elbow_min_rad):.1f} deg, "
+        f"shoulder {th.shoulder_min_m * 1000:.0f} mm, "
+        f"manipulability floor {th.manipulability_min:g}"
     )
     return buffer.getvalue()
