@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import io
 import math
 
 import numpy as np
@@ -33,20 +32,11 @@ def sampled_reach_m(robot: Robot) -> float:
 def describe_robot(robot: Robot) -> str:
     """A plain-text page describing a validated robot."""
     from rich import box
-    from rich.console import Console
     from rich.table import Table
 
-    buffer = io.StringIO()
-    console = Console(
-        file=buffer,
-        width=110,
-        no_color=True,
-        color_system=None,
-        force_terminal=False,
-        highlight=False,
-        markup=False,
-        emoji=False,
-    )
+    from reachgate.report import plain_console
+
+    console, buffer = plain_console(110)
     console.print(f"robot: {robot.name} ({robot.source})")
     console.print(
         f"DH convention: {robot.convention.value}; {len(robot.joints)} arm joints; "

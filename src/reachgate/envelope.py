@@ -603,20 +603,11 @@ def _cell(item: DirectionEnvelope, k: int) -> str:
 def render_envelope_table(result: Envelope, width: int = 160) -> str:
     """Colour-free table: one row per frequency, one column per direction (mm or deg)."""
     from rich import box
-    from rich.console import Console
     from rich.table import Table
 
-    buffer = io.StringIO()
-    console = Console(
-        file=buffer,
-        width=width,
-        no_color=True,
-        color_system=None,
-        force_terminal=False,
-        highlight=False,
-        emoji=False,
-        markup=False,
-    )
+    from reachgate.report import plain_console
+
+    console, buffer = plain_console(width)
     xyz_mm = result.cell_T_operating[:3, 3] * 1000.0
     rpy_deg = np.degrees(matrix_to_rpy(result.cell_T_operating))
     console.print(f"reachgate {__version__}: envelope of {result.robot}")

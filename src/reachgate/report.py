@@ -49,6 +49,28 @@ CSV_COLUMNS = (
 )
 
 
+def plain_console(width: int, **options):
+    """A rich Console that writes colour-free text, no control codes, into a buffer.
+
+    Returns (console, buffer); buffer.getvalue() is the rendered text.
+    """
+    from rich.console import Console
+
+    buffer = io.StringIO()
+    console = Console(
+        file=buffer,
+        width=width,
+        no_color=True,
+        color_system=None,
+        force_terminal=False,
+        highlight=False,
+        emoji=False,
+        markup=False,
+        **options,
+    )
+    return console, buffer
+
+
 def display(value: float, unit: str) -> tuple[str, str]:
     """A value in SI -> (text in table units, table unit)."""
     shown_unit, factor = _DISPLAY.get(unit, (unit, 1.0))
@@ -143,20 +165,9 @@ def _group_table(report: Report):
 def render_table(report: Report, width: int = 110, max_rows: int = TABLE_MAX_ROWS) -> str:
     """The colour-free text report: verdict, interval rows, margins, advice, cautions."""
     from rich import box
-    from rich.console import Console
     from rich.table import Table
 
-    buffer = io.StringIO()
-    console = Console(
-        file=buffer,
-        width=width,
-        no_color=True,
-        color_system=None,
-        force_terminal=False,
-        highlight=False,
-        emoji=False,
-        markup=False,
-    )
+    console, buffer = plain_console(width)
     n_viol = sum(v.severity is Severity.VIOLATION for v in report.violations)
     n_near = len(report.violations) - n_viol
     s = report.settings

@@ -581,23 +581,11 @@ def _margin_text(c: CaseResult) -> str:
 def render_table(summary: ScanSummary, width: int = 120) -> str:
     """Colour-free summary: ranked cases, counts per check, errors, cautions."""
     from rich import box
-    from rich.console import Console
     from rich.table import Table
 
-    from reachgate.report import SAFETY_CAUTIONS
+    from reachgate.report import SAFETY_CAUTIONS, plain_console
 
-    buffer = io.StringIO()
-    console = Console(
-        file=buffer,
-        width=width,
-        no_color=True,
-        color_system=None,
-        force_terminal=False,
-        highlight=False,
-        emoji=False,
-        markup=False,
-        soft_wrap=True,  # plain lines are not folded; tables keep the width
-    )
+    console, buffer = plain_console(width, soft_wrap=True)
     tally = summary.tally()
     console.print(f"reachgate {__version__} scan, results store {summary.store_path}")
     console.print(
