@@ -15,10 +15,10 @@ import numpy as np
 
 from reachgate.ik_closed import ALL_BRANCHES, Branch, SphericalWristSolver, is_spherical_wrist
 from reachgate.ik_numeric import solve_path_numeric
-from reachgate.kinematics import forward
+from reachgate.kinematics import tcp_columns
 from reachgate.robot import Robot
 from reachgate.trajectory import Trajectory
-from reachgate.transforms import invert_transform, quat_to_matrix, rotation_angle, transform
+from reachgate.transforms import invert_transform, quat_to_matrix, transform
 
 #: A solved sample whose FK misses the target by more than this is counted unreachable (m, rad).
 RESIDUAL_TOL_M = 1e-9
@@ -113,16 +113,22 @@ def solve_trajectory(
     continues from the last joint values of the one before, so the result equals one solve.
     """
     n = trajectory.n_samples
+    place_R, place_p = cell_T_scenario[:3, :3], cell_T_scenario[:3, 3]
     parts: list[PathSolution] = []
     start_arm = None
     for first in range(0, n, chunk_samples):
         part = slice(first, min(first + chunk_samples, n))
-        scenario_T_tcp = transform(
-            quat_to_matrix(trajectory.scenario_q_wxyz[part]), trajectory.scenario_p_m[part]
+        scenario_R_tcp = quat_to_matrix(trajectory.scenario_q_wxyz[part])  # (n, 3, 3)
+        # cell_R_scenario @ R for every sample as one (3n, 3) product: Rᵀ Pᵀ stacked
+        cell_R_tcp = (
+            (scenario_R_tcp.transpose(0, 2, 1).reshape(-1, 3) @ place_R.T)
+            .reshape(scenario_R_tcp.shape)
+            .transpose(0, 2, 1)
         )
+        cell_p_tcp = trajectory.scenario_p_m[part] @ place_R.T + place_p
         solved = solve_path(
             robot,
-            cell_T_scenario @ scenario_T_tcp,
+            transform(cell_R_tcp, cell_p_tcp),
             None if rail_m is None else rail_m[part],
             start_arm=start_arm,
         )
@@ -141,6 +147,26 @@ def solve_trajectory(
         other_branch_fits=np.concatenate([p.other_branch_fits for p in parts]),
         measures={k: np.concatenate([p.measures[k] for p in parts]) for k in first.measures},
     )
+
+
+def _residuals(robot: Robot, q: np.ndarray, cell_T_tool: np.ndarray):
+    """FK(q) against the targets: (N,) position error in m and orientation error in rad.
+
+    With a = FK columns and b = target columns, M = Raᵀ Rb has M_ij = a_i · b_j; the angle of
+    M is atan2(|skew(M)|, trace(M) - 1), evaluated on (N,) columns without (N, 3, 3) products.
+    """
+    xa, ya, za, pa = tcp_columns(robot, q)
+    a = (xa, ya, za)
+    b = [[cell_T_tool[:, k, c] for k in range(3)] for c in range(3)]
+
+    def m(i, j):
+        return a[i][0] * b[j][0] + a[i][1] * b[j][1] + a[i][2] * b[j][2]
+
+    trace = m(0, 0) + m(1, 1) + m(2, 2)
+    skew = np.sqrt((m(2, 1) - m(1, 2)) ** 2 + (m(0, 2) - m(2, 0)) ** 2 + (m(1, 0) - m(0, 1)) ** 2)
+    dp = [pa[k] - cell_T_tool[:, k, 3] for k in range(3)]
+    position = np.sqrt(dp[0] ** 2 + dp[1] ** 2 + dp[2] ** 2)
+    return position, np.arctan2(skew, trace - 1.0)
 
 
 def solve_path(
@@ -192,11 +218,7 @@ def solve_path(
     if rail_m is not None:
         q_rows[0] = rail_m
     q = q_rows.T
-    achieved = forward(robot, q)
-    position_error = np.linalg.norm(achieved[:, :3, 3] - cell_T_tool[:, :3, 3], axis=1)
-    orientation_error = rotation_angle(
-        np.swapaxes(achieved[:, :3, :3], 1, 2) @ cell_T_tool[:, :3, :3]
-    )
+    position_error, orientation_error = _residuals(robot, q, cell_T_tool)
     missed = (position_error > RESIDUAL_TOL_M) | (orientation_error > RESIDUAL_TOL_RAD)
     # An unsolved sample with no geometric excess still counts as out of reach, by its miss.
     reach = np.where(missed & (reach == 0), np.maximum(position_error, 1e-12), reach)

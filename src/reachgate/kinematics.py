@@ -101,10 +101,13 @@ def compose_links(chain: Chain, q_arm: np.ndarray, x, y, z, p):
     return x, y, z, p
 
 
-def forward(robot: Robot, q: np.ndarray) -> np.ndarray:
-    """TCP poses in the cell, (N, n_axes) -> (N, 4, 4) cell_T_tool."""
+def tcp_columns(robot: Robot, q: np.ndarray):
+    """TCP axes and origin in the cell as columns: (N, n_axes) -> x, y, z, p.
+
+    Each is a list of three (N,) arrays (cell x, y, z components); x, y, z are the columns of
+    the TCP rotation, p its position.
+    """
     rail_m, q_arm = split_axes(robot, q)
-    n_samples = q_arm.shape[0]
     start = robot.cell_T_rail @ robot.carriage_T_base @ robot.chain.base_T_chain
     x, y, z = ([start[k, c] for k in range(3)] for c in range(3))
     p = [start[k, 3] for k in range(3)]
@@ -112,13 +115,21 @@ def forward(robot: Robot, q: np.ndarray) -> np.ndarray:
         p = [p[k] + rail_m * robot.cell_T_rail[k, 0] for k in range(3)]
     x, y, z, p = compose_links(robot.chain, q_arm, x, y, z, p)
     tool = robot.flange_T_tool
-    T = np.empty((n_samples, 4, 4))
-    for c in range(3):
+    axes = [
+        [x[k] * tool[0, c] + y[k] * tool[1, c] + z[k] * tool[2, c] for k in range(3)]
+        for c in range(3)
+    ]
+    origin = [p[k] + x[k] * tool[0, 3] + y[k] * tool[1, 3] + z[k] * tool[2, 3] for k in range(3)]
+    return axes[0], axes[1], axes[2], origin
+
+
+def forward(robot: Robot, q: np.ndarray) -> np.ndarray:
+    """TCP poses in the cell, (N, n_axes) -> (N, 4, 4) cell_T_tool."""
+    columns = tcp_columns(robot, q)
+    T = np.zeros((np.asarray(q).shape[0], 4, 4))
+    for c, column in enumerate(columns):
         for k in range(3):
-            T[:, k, c] = x[k] * tool[0, c] + y[k] * tool[1, c] + z[k] * tool[2, c]
-    for k in range(3):
-        T[:, k, 3] = p[k] + x[k] * tool[0, 3] + y[k] * tool[1, 3] + z[k] * tool[2, 3]
-    T[:, 3, :3] = 0.0
+            T[:, k, c] = column[k]
     T[:, 3, 3] = 1.0
     return T
 
