@@ -154,7 +154,11 @@ def _derivatives_of_block(
         # weights of `window` model samples serve the whole block (same fit, no solves).
         model_t = np.arange(window) * float(np.mean(steps))
         _, model = derivative_weights(model_t, np.arange(window), window, degree)
-        weights = model[:, :, index - starts]
+        offsets = index - starts
+        if offsets[0] == offsets[-1]:  # every window sits alike: the weights are scalars
+            weights = model[:, :, offsets[0]][:, :, None]
+        else:
+            weights = model[:, :, offsets]
     else:
         starts, weights = derivative_weights(t_s, index, window, degree)
     block = out[:, :, lo:hi]

@@ -69,12 +69,18 @@ def chain_targets(robot: Robot, cell_T_tool: np.ndarray, rail_m: np.ndarray | No
     C_inv = invert_transform(robot.cell_T_rail)
     B_inv = invert_transform(robot.carriage_T_base @ robot.chain.base_T_chain)
     tool_inv = invert_transform(robot.flange_T_tool)
-    R, p = cell_T_tool[:, :3, :3], cell_T_tool[:, :3, 3]
-    rail_p = (p + R @ tool_inv[:3, 3]) @ C_inv[:3, :3].T + C_inv[:3, 3]  # flange in rail frame
+    n = cell_T_tool.shape[0]
+    # Constant 3x3 factors applied to all samples as single stacked (3n, 3) products.
+    rows = np.ascontiguousarray(cell_T_tool[:, :3, :3]).reshape(-1, 3)  # rows of each R
+    R_tool = (rows @ tool_inv[:3, :3]).reshape(n, 3, 3)  # R · tool⁻¹
+    left = B_inv[:3, :3] @ C_inv[:3, :3]
+    R_out = (R_tool.transpose(0, 2, 1).reshape(-1, 3) @ left.T).reshape(n, 3, 3)
+    flange_p = cell_T_tool[:, :3, 3] + (rows @ tool_inv[:3, 3]).reshape(n, 3)
+    rail_p = flange_p @ C_inv[:3, :3].T + C_inv[:3, 3]  # flange in the rail frame
     if rail_m is not None:
         rail_p[:, 0] -= rail_m
     out = np.empty_like(cell_T_tool)
-    out[:, :3, :3] = (B_inv[:3, :3] @ C_inv[:3, :3]) @ R @ tool_inv[:3, :3]
+    out[:, :3, :3] = R_out.transpose(0, 2, 1)
     out[:, :3, 3] = rail_p @ B_inv[:3, :3].T + B_inv[:3, 3]
     out[:, 3] = (0.0, 0.0, 0.0, 1.0)
     return out
