@@ -119,3 +119,13 @@ def test_rate_checks_in_blocks_equal_one_pass(robot, monkeypatch):
     assert whole.violations and blocks.violations == whole.violations
     assert blocks.margins == whole.margins
     assert blocks.slowdown == whole.slowdown
+
+
+def test_arm_manipulability_in_blocks_equals_one_jacobian_pass(robot, monkeypatch):
+    from reachgate import kinematics
+
+    rng = np.random.default_rng(41)
+    q = rng.uniform(robot.lower, robot.upper, (1000, robot.n_axes))
+    whole = kinematics.manipulability(kinematics.jacobian(robot, q)[:, :, 1:])
+    monkeypatch.setattr(kinematics, "MANIPULABILITY_BLOCK_SAMPLES", 97)
+    np.testing.assert_array_equal(kinematics.arm_manipulability(robot, q), whole)

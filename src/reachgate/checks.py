@@ -8,7 +8,7 @@ into one row per run of samples, never one per sample. A run that crosses the li
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, fields
 from enum import Enum
 
 import numpy as np
@@ -49,17 +49,16 @@ class Violation:
     unit: str
 
     def as_dict(self) -> dict:
+        """JSON-ready row (DESIGN §6 keys, in field order); enums by their report names."""
         return {
-            "check": self.check.value,
-            "axis": self.axis,
-            "severity": self.severity.value,
-            "start_s": self.start_s,
-            "end_s": self.end_s,
-            "worst_s": self.worst_s,
-            "worst": self.worst,
-            "limit": self.limit,
-            "unit": self.unit,
+            f.name: getattr(self, f.name).value
+            if isinstance(getattr(self, f.name), Enum)
+            else getattr(self, f.name)
+            for f in fields(self)
         }
+
+
+ROW_KEYS = tuple(f.name for f in fields(Violation))
 
 
 def _runs(mask: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -209,11 +208,6 @@ def intervals(
     stream = IntervalStream(band, check=check, axis=axis, unit=unit)
     stream.feed(t_s, excess, worst_value, limit_value)
     return stream.finish()
-
-
-def margin_fraction(used_fraction: np.ndarray) -> float:
-    """Smallest fraction of a limit left over the run: 1 - max(used/limit)."""
-    return float(1.0 - np.max(used_fraction))
 
 
 def sort_rows(rows: list[Violation]) -> list[Violation]:

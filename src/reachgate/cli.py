@@ -14,7 +14,11 @@ from typing import Annotated, TypeVar
 
 import typer
 
+from reachgate.check import DEFAULT_LAG_TOL_M
 from reachgate.errors import ReachgateError
+from reachgate.rail import DEFAULT_BANDWIDTH_HZ
+
+DEFAULT_LAG_TOL_MM = DEFAULT_LAG_TOL_M * 1000.0
 
 app = typer.Typer(
     add_completion=False,
@@ -108,9 +112,9 @@ def check_command(
     place: PlaceOption = None,
     rail: RailOption = RailMode.fixed,
     rail_at: RailAtOption = None,
-    rail_bandwidth: BandwidthOption = 0.5,
+    rail_bandwidth: BandwidthOption = DEFAULT_BANDWIDTH_HZ,
     lag: LagOption = None,
-    lag_tol: LagTolOption = 1.0,
+    lag_tol: LagTolOption = DEFAULT_LAG_TOL_MM,
     fmt: Annotated[
         OutputFormat, typer.Option("--format", help="Report format.")
     ] = OutputFormat.table,
@@ -291,9 +295,9 @@ def scan_command(
     place: PlaceOption = None,
     rail: RailOption = RailMode.fixed,
     rail_at: RailAtOption = None,
-    rail_bandwidth: BandwidthOption = 0.5,
+    rail_bandwidth: BandwidthOption = DEFAULT_BANDWIDTH_HZ,
     lag: LagOption = None,
-    lag_tol: LagTolOption = 1.0,
+    lag_tol: LagTolOption = DEFAULT_LAG_TOL_MM,
     store: Annotated[
         Path | None,
         typer.Option(

@@ -181,7 +181,19 @@ def manipulability(J: np.ndarray) -> np.ndarray:
     return np.sqrt(np.clip(np.linalg.det(JJt), 0.0, None))
 
 
+#: Samples per Jacobian block in arm_manipulability: bounds the (block, 6, n) work arrays.
+MANIPULABILITY_BLOCK_SAMPLES = 65_536
+
+
 def arm_manipulability(robot: Robot, q: np.ndarray) -> np.ndarray:
-    """Yoshikawa's measure of the arm alone (rail column left out), (N, n_axes) -> (N,)."""
-    J = jacobian(robot, q)
-    return manipulability(J[:, :, 1:] if robot.has_rail else J)
+    """Yoshikawa's measure of the arm alone (rail column left out), (N, n_axes) -> (N,).
+
+    Works in blocks, so an hour-long path never holds all (N, 6, n) Jacobians at once.
+    """
+    q = np.asarray(q, dtype=float)
+    out = np.empty(q.shape[0])
+    for first in range(0, q.shape[0], MANIPULABILITY_BLOCK_SAMPLES):
+        part = slice(first, first + MANIPULABILITY_BLOCK_SAMPLES)
+        J = jacobian(robot, q[part])
+        out[part] = manipulability(J[:, :, 1:] if robot.has_rail else J)
+    return out

@@ -13,7 +13,7 @@ from pathlib import Path
 import numpy as np
 
 from reachgate.check import Report
-from reachgate.checks import Severity
+from reachgate.checks import ROW_KEYS, Severity
 
 SAFETY_CAUTIONS = (
     "A pass here is not a safety validation of the cell or the path.",
@@ -36,17 +36,7 @@ _DISPLAY = {
     "1": ("", 1.0),
 }
 
-CSV_COLUMNS = (
-    "check",
-    "axis",
-    "severity",
-    "start_s",
-    "end_s",
-    "worst_s",
-    "worst",
-    "limit",
-    "unit",
-)
+CSV_COLUMNS = ROW_KEYS
 
 
 def plain_console(width: int, **options):
