@@ -97,13 +97,22 @@ def test_margins_agree_with_violations(robot):
             assert report.margins[row.axis][row.check.value] < 0
 
 
-def test_placement_moves_the_path(robot):
+def test_placement_along_the_rail_goes_to_the_rail_when_it_follows(robot):
+    """A placement shifted by d along the rail axis moves the carriage by exactly d and leaves
+    the arm's joints unchanged (the follow filter is linear with unit DC gain, starting at rest
+    on the first sample; analytic invariance)."""
     path = sway_path()
+    follow = reachgate.CheckSettings(rail=RailPolicy.FOLLOW)
+    base = reachgate.check(robot, path, follow)
     moved = reachgate.check(
-        robot, path, reachgate.CheckSettings(placement=reachgate.Placement.parse("0.5,0,0,0,0,0"))
+        robot,
+        path,
+        reachgate.CheckSettings(
+            rail=RailPolicy.FOLLOW, placement=reachgate.Placement.parse("0.5,0,0,0,0,0")
+        ),
     )
-    base = reachgate.check(robot, path)
-    assert not np.allclose(moved.solution.q, base.solution.q)
+    np.testing.assert_allclose(moved.solution.q[:, 0], base.solution.q[:, 0] + 0.5, atol=1e-9)
+    np.testing.assert_allclose(moved.solution.q[:, 1:], base.solution.q[:, 1:], atol=1e-9)
 
 
 def test_rate_checks_in_blocks_equal_one_pass(robot, monkeypatch):
