@@ -21,12 +21,20 @@ from scipy.spatial.transform import Rotation
 from spatialmath import SE3
 
 import reachgate
-from reachgate.ik import SolverKind, chain_targets, continuous_angles, solve_path
+from reachgate.ik import (
+    SolverKind,
+    chain_targets,
+    continuous_angles,
+    solve_path,
+    target_map,
+    target_rows,
+    target_rows_from_quaternions,
+)
 from reachgate.ik_closed import ALL_BRANCHES, SphericalWristSolver, is_spherical_wrist
 from reachgate.ik_numeric import solve_path_numeric
 from reachgate.kinematics import cell_T_base, forward
 from reachgate.robot import robot_from_dict
-from reachgate.transforms import matrix_to_quat
+from reachgate.transforms import matrix_to_quat, quat_to_matrix, rpy_to_matrix, transform
 
 from conftest import DEMO_ROBOT
 
@@ -357,3 +365,38 @@ def test_reach_excess_is_the_analytic_distance_out_of_the_shell():
     assert len(reach) == 1
     assert reach[0].worst == pytest.approx(expected.max(), abs=1e-12)
     assert reach[0].worst_s == pytest.approx(t[np.argmax(expected)])
+
+
+def test_target_rows_from_quaternions_equal_those_from_placed_matrices():
+    """The solver's targets built from scenario quaternions through a placement equal the
+    targets of the same poses given as cell matrices (4x4 products), rail moving."""
+    robot = demo_robot()
+    rng = np.random.default_rng(431)
+    n = 200
+    q_wxyz = rng.normal(size=(n, 4))
+    q_wxyz /= np.linalg.norm(q_wxyz, axis=1, keepdims=True)
+    scenario_p_m = rng.uniform(-1.0, 1.0, (n, 3))
+    rail_m = rng.uniform(robot.rail.lower, robot.rail.upper, n)
+    cell_T_scenario = transform(
+        rpy_to_matrix(np.array([0.1, -0.2, 0.7])), np.array([3.0, 0.2, 1.5])
+    )
+    cell_T_tool = cell_T_scenario @ transform(quat_to_matrix(q_wxyz), scenario_p_m)
+    from_quaternions = target_rows_from_quaternions(
+        target_map(robot, cell_T_scenario), q_wxyz, scenario_p_m, rail_m
+    )
+    np.testing.assert_allclose(
+        from_quaternions, target_rows(robot, cell_T_tool, rail_m), atol=1e-13
+    )
+
+    # and the flange targets are B⁻¹ · Tx(-rail) · C⁻¹ · cell_T_tool · tool⁻¹ as 4x4 products
+    along_rail = np.tile(np.eye(4), (n, 1, 1))
+    along_rail[:, 0, 3] = -rail_m
+    B = robot.carriage_T_base @ robot.chain.base_T_chain
+    expected = (
+        np.linalg.inv(B)
+        @ along_rail
+        @ np.linalg.inv(robot.cell_T_rail)
+        @ cell_T_tool
+        @ np.linalg.inv(robot.flange_T_tool)
+    )
+    np.testing.assert_allclose(chain_targets(robot, cell_T_tool, rail_m), expected, atol=1e-12)

@@ -15,10 +15,10 @@ import numpy as np
 
 from reachgate.ik_closed import ALL_BRANCHES, Branch, SphericalWristSolver, is_spherical_wrist
 from reachgate.ik_numeric import solve_path_numeric
-from reachgate.kinematics import tcp_columns
+from reachgate.kinematics import IDENTITY_COLUMNS, compose_links
 from reachgate.robot import Robot
 from reachgate.trajectory import Trajectory
-from reachgate.transforms import invert_transform, quat_to_matrix, transform
+from reachgate.transforms import invert_transform
 
 #: A solved sample whose FK misses the target by more than this is counted unreachable (m, rad).
 RESIDUAL_TOL_M = 1e-9
@@ -60,30 +60,99 @@ class PathSolution:
     measures: dict[str, np.ndarray] = field(default_factory=dict)
 
 
-def chain_targets(robot: Robot, cell_T_tool: np.ndarray, rail_m: np.ndarray | None) -> np.ndarray:
-    """Flange targets in the chain's base frame, (N, 4, 4) cell TCP poses -> (N, 4, 4).
+#: Rows of the target arrays (15, N) the solvers read, all in the chain's base frame:
+#: the flange rotation's entries row by row, the flange origin, the TCP origin.
+ROTATION_ROWS, FLANGE_ROWS, TCP_ROWS = slice(0, 9), slice(9, 12), slice(12, 15)
+TARGET_ROWS = 15
 
-    chain_T_flange = B⁻¹ · Tx(-rail) · C⁻¹ · cell_T_tool · tool⁻¹, with C = cell_T_rail and
-    B = carriage_T_base · base_T_chain (without a rail, C is the identity and B the mount).
+# A unit quaternion's rotation entries (row by row) as a linear map of its ten quadratic
+# monomials w², x², y², z², wx, wy, wz, xy, xz, yz (the homogeneous form of the usual matrix).
+_MONOMIAL_PAIRS = np.array(
+    [(0, 0), (1, 1), (2, 2), (3, 3), (0, 1), (0, 2), (0, 3), (1, 2), (1, 3), (2, 3)]
+)
+_QUAT_TO_ROTATION = np.array(
+    [
+        [1, 1, -1, -1, 0, 0, 0, 0, 0, 0],  # r00 = w² + x² - y² - z²
+        [0, 0, 0, 0, 0, 0, -2, 2, 0, 0],  # r01 = 2(xy - wz)
+        [0, 0, 0, 0, 0, 2, 0, 0, 2, 0],  # r02 = 2(xz + wy)
+        [0, 0, 0, 0, 0, 0, 2, 2, 0, 0],  # r10 = 2(xy + wz)
+        [1, -1, 1, -1, 0, 0, 0, 0, 0, 0],  # r11 = w² - x² + y² - z²
+        [0, 0, 0, 0, -2, 0, 0, 0, 0, 2],  # r12 = 2(yz - wx)
+        [0, 0, 0, 0, 0, -2, 0, 0, 2, 0],  # r20 = 2(xz - wy)
+        [0, 0, 0, 0, 2, 0, 0, 0, 0, 2],  # r21 = 2(yz + wx)
+        [1, -1, -1, 1, 0, 0, 0, 0, 0, 0],  # r22 = w² - x² - y² + z²
+    ],
+    dtype=float,
+)
+
+
+def target_map(robot: Robot, cell_T_scenario: np.ndarray) -> np.ndarray:
+    """The linear map from scenario poses to target rows, (15, 14).
+
+    Applied to the features [R entries row by row (9), p (3), rail_m, 1] of a scenario pose
+    (R, p) it gives the TARGET_ROWS. With P = cell_T_scenario, C = cell_T_rail and
+    B = carriage_T_base · base_T_chain: chain_T_flange = B⁻¹ · Tx(-rail) · C⁻¹ · P · S · tool⁻¹,
+    which is linear in S's entries and in the rail position.
     """
-    C_inv = invert_transform(robot.cell_T_rail)
-    B_inv = invert_transform(robot.carriage_T_base @ robot.chain.base_T_chain)
+    G = invert_transform(robot.cell_T_rail) @ cell_T_scenario
+    H = invert_transform(robot.carriage_T_base @ robot.chain.base_T_chain)
     tool_inv = invert_transform(robot.flange_T_tool)
-    n = cell_T_tool.shape[0]
-    # Constant 3x3 factors applied to all samples as single stacked (3n, 3) products.
-    rows = np.ascontiguousarray(cell_T_tool[:, :3, :3]).reshape(-1, 3)  # rows of each R
-    R_tool = (rows @ tool_inv[:3, :3]).reshape(n, 3, 3)  # R · tool⁻¹
-    left = B_inv[:3, :3] @ C_inv[:3, :3]
-    R_out = (R_tool.transpose(0, 2, 1).reshape(-1, 3) @ left.T).reshape(n, 3, 3)
-    flange_p = cell_T_tool[:, :3, 3] + (rows @ tool_inv[:3, 3]).reshape(n, 3)
-    rail_p = flange_p @ C_inv[:3, :3].T + C_inv[:3, 3]  # flange in the rail frame
+    A = H[:3, :3] @ G[:3, :3]
+    offset = H[:3, :3] @ G[:3, 3] + H[:3, 3]
+    rail_axis = H[:3, 0]  # the carriage moves the base along the rail frame's +x
+    W = np.zeros((TARGET_ROWS, 14))
+    W[ROTATION_ROWS, :9] = np.kron(A, tool_inv[:3, :3].T)  # A S T: entry (3i+j, 3k+l) = A_ik T_lj
+    W[FLANGE_ROWS, :9] = np.kron(A, tool_inv[:3, 3][None, :])  # A S t
+    for rows in (FLANGE_ROWS, TCP_ROWS):
+        W[rows, 9:12] = A
+        W[rows, 12] = -rail_axis
+        W[rows, 13] = offset
+    return W
+
+
+def _apply_map(W: np.ndarray, features: np.ndarray, rail_m: np.ndarray | None) -> np.ndarray:
+    """W (15, k + 2) with its last two columns for rail_m and 1; features (k, N) -> (15, N)."""
+    rows = W[:, :-2] @ features
+    rows += W[:, -1:]
     if rail_m is not None:
-        rail_p[:, 0] -= rail_m
-    out = np.empty_like(cell_T_tool)
-    out[:, :3, :3] = R_out.transpose(0, 2, 1)
-    out[:, :3, 3] = rail_p @ B_inv[:3, :3].T + B_inv[:3, 3]
-    out[:, 3] = (0.0, 0.0, 0.0, 1.0)
-    return out
+        rows += W[:, -2:-1] * rail_m
+    return rows
+
+
+def target_rows_from_quaternions(
+    W: np.ndarray, q_wxyz: np.ndarray, p_m: np.ndarray, rail_m: np.ndarray | None
+) -> np.ndarray:
+    """Target rows (15, N) of scenario poses given as (N, 4) unit quaternions and (N, 3) m."""
+    q_rows = q_wxyz.T
+    features = np.empty((13, q_wxyz.shape[0]))
+    np.multiply(q_rows[_MONOMIAL_PAIRS[:, 0]], q_rows[_MONOMIAL_PAIRS[:, 1]], out=features[:10])
+    features[10:] = p_m.T
+    W_quat = np.concatenate([W[:, :9] @ _QUAT_TO_ROTATION, W[:, 9:]], axis=1)
+    return _apply_map(W_quat, features, rail_m)
+
+
+def target_rows(robot: Robot, cell_T_tool: np.ndarray, rail_m: np.ndarray | None) -> np.ndarray:
+    """Target rows (15, N) of (N, 4, 4) TCP poses in the cell at rail positions (N,) or None."""
+    n = cell_T_tool.shape[0]
+    features = np.empty((12, n))
+    features[:9] = cell_T_tool[:, :3, :3].reshape(n, 9).T
+    features[9:] = cell_T_tool[:, :3, 3].T
+    return _apply_map(target_map(robot, np.eye(4)), features, rail_m)
+
+
+def rows_to_matrices(rows: np.ndarray) -> np.ndarray:
+    """Flange poses (N, 4, 4) in the chain's base frame from target rows (15, N)."""
+    n = rows.shape[1]
+    T = np.zeros((n, 4, 4))
+    T[:, :3, :3] = rows[ROTATION_ROWS].T.reshape(n, 3, 3)
+    T[:, :3, 3] = rows[FLANGE_ROWS].T
+    T[:, 3, 3] = 1.0
+    return T
+
+
+def chain_targets(robot: Robot, cell_T_tool: np.ndarray, rail_m: np.ndarray | None) -> np.ndarray:
+    """Flange targets in the chain's base frame, (N, 4, 4) cell TCP poses -> (N, 4, 4)."""
+    return rows_to_matrices(target_rows(robot, cell_T_tool, rail_m))
 
 
 def continuous_angles(theta: np.ndarray, reference: np.ndarray) -> np.ndarray:
@@ -119,25 +188,16 @@ def solve_trajectory(
     continues from the last joint values of the one before, so the result equals one solve.
     """
     n = trajectory.n_samples
-    place_R, place_p = cell_T_scenario[:3, :3], cell_T_scenario[:3, 3]
+    W = target_map(robot, cell_T_scenario)
     parts: list[PathSolution] = []
     start_arm = None
     for first in range(0, n, chunk_samples):
         part = slice(first, min(first + chunk_samples, n))
-        scenario_R_tcp = quat_to_matrix(trajectory.scenario_q_wxyz[part])  # (n, 3, 3)
-        # cell_R_scenario @ R for every sample as one (3n, 3) product: Rᵀ Pᵀ stacked
-        cell_R_tcp = (
-            (scenario_R_tcp.transpose(0, 2, 1).reshape(-1, 3) @ place_R.T)
-            .reshape(scenario_R_tcp.shape)
-            .transpose(0, 2, 1)
+        rail_part = None if rail_m is None else rail_m[part]
+        rows = target_rows_from_quaternions(
+            W, trajectory.scenario_q_wxyz[part], trajectory.scenario_p_m[part], rail_part
         )
-        cell_p_tcp = trajectory.scenario_p_m[part] @ place_R.T + place_p
-        solved = solve_path(
-            robot,
-            transform(cell_R_tcp, cell_p_tcp),
-            None if rail_m is None else rail_m[part],
-            start_arm=start_arm,
-        )
+        solved = _solve_rows(robot, rows, rail_part, start_arm)
         parts.append(solved)
         start_arm = solved.q[-1, 1:] if robot.has_rail else solved.q[-1]
     if len(parts) == 1:
@@ -155,24 +215,22 @@ def solve_trajectory(
     )
 
 
-def _residuals(robot: Robot, q: np.ndarray, cell_T_tool: np.ndarray):
-    """FK(q) against the targets: (N,) position error in m and orientation error in rad.
+def _residuals(robot: Robot, q_arm: np.ndarray, rows: np.ndarray):
+    """FK(q) against the target rows: (N,) TCP position error in m, orientation error in rad.
 
-    With a = FK columns and b = target columns, M = Raᵀ Rb has M_ij = a_i · b_j; the angle of
-    M is atan2(|skew(M)|, trace(M) - 1), evaluated on (N,) columns without (N, 3, 3) products.
+    Compared in the chain's base frame, which the rigid placement, rail and mount transforms
+    map onto the cell without changing either distance. The orientation error is the angle
+    of Raᵀ Rb from the chordal distance |Ra - Rb|_F = 2√2 sin(θ/2) (Hartley et al., "Rotation
+    averaging", 2013), which stays exact for small angles.
     """
-    xa, ya, za, pa = tcp_columns(robot, q)
-    a = (xa, ya, za)
-    b = [[cell_T_tool[:, k, c] for k in range(3)] for c in range(3)]
-
-    def m(i, j):
-        return a[i][0] * b[j][0] + a[i][1] * b[j][1] + a[i][2] * b[j][2]
-
-    trace = m(0, 0) + m(1, 1) + m(2, 2)
-    skew = np.sqrt((m(2, 1) - m(1, 2)) ** 2 + (m(0, 2) - m(2, 0)) ** 2 + (m(1, 0) - m(0, 1)) ** 2)
-    dp = [pa[k] - cell_T_tool[:, k, 3] for k in range(3)]
-    position = np.sqrt(dp[0] ** 2 + dp[1] ** 2 + dp[2] ** 2)
-    return position, np.arctan2(skew, trace - 1.0)
+    x, y, z, p = compose_links(robot.chain, q_arm, *IDENTITY_COLUMNS)
+    tool_p = robot.flange_T_tool[:3, 3]
+    columns = (x, y, z)
+    chord_sq = sum((columns[j][i] - rows[3 * i + j]) ** 2 for i in range(3) for j in range(3))
+    tcp_m = [p[k] + x[k] * tool_p[0] + y[k] * tool_p[1] + z[k] * tool_p[2] for k in range(3)]
+    position = np.sqrt(sum((tcp_m[k] - rows[TCP_ROWS.start + k]) ** 2 for k in range(3)))
+    orientation = 2.0 * np.arcsin(np.minimum(np.sqrt(chord_sq) / (2.0 * np.sqrt(2.0)), 1.0))
+    return position, orientation
 
 
 def solve_path(
@@ -186,18 +244,24 @@ def solve_path(
     start_arm: (n,) arm values the path continues from (default: home); the branch is always
     the home configuration's.
     """
-    targets = chain_targets(robot, cell_T_tool, rail_m)
+    return _solve_rows(robot, target_rows(robot, cell_T_tool, rail_m), rail_m, start_arm)
+
+
+def _solve_rows(
+    robot: Robot, rows: np.ndarray, rail_m: np.ndarray | None, start_arm: np.ndarray | None
+) -> PathSolution:
+    """solve_path on target rows (15, N) (see target_map)."""
     chain = robot.chain
     arm = slice(1, None) if robot.has_rail else slice(None)
     home_arm = robot.home[arm]
     previous = home_arm if start_arm is None else np.asarray(start_arm, dtype=float)
     lower, upper = robot.lower[arm], robot.upper[arm]
-    n_samples = targets.shape[0]
+    n_samples = rows.shape[1]
 
     if is_spherical_wrist(chain):
         solver = SphericalWristSolver(chain)
         branch = solver.branch_of(home_arm + chain.theta_offset_rad)
-        sol = solver.solve(targets, branch)
+        sol = solver.solve_rows(rows, branch)
         q_arm = continuous_angles(sol.theta - chain.theta_offset_rad, previous)
         reach = sol.reach_excess_m
         measures = {"shoulder": sol.shoulder_m, "elbow": sol.elbow_rad, "wrist": sol.wrist_rad}
@@ -207,11 +271,11 @@ def solve_path(
             for other in ALL_BRANCHES:
                 if other == branch:
                     continue
-                alt = solver.solve(targets[outside], other).theta - chain.theta_offset_rad
+                alt = solver.solve_rows(rows[:, outside], other).theta - chain.theta_offset_rad
                 other_fits[outside] |= _fits_range(alt, lower, upper)
         kind, kept = SolverKind.CLOSED_FORM, branch
     else:
-        numeric = solve_path_numeric(chain, targets, previous)
+        numeric = solve_path_numeric(chain, rows_to_matrices(rows), previous)
         q_arm = numeric.q_arm
         reach = np.where(numeric.solved, 0.0, numeric.position_error_m)
         measures = {}
@@ -224,7 +288,7 @@ def solve_path(
     if rail_m is not None:
         q_rows[0] = rail_m
     q = q_rows.T
-    position_error, orientation_error = _residuals(robot, q, cell_T_tool)
+    position_error, orientation_error = _residuals(robot, q[:, -chain.n :], rows)
     missed = (position_error > RESIDUAL_TOL_M) | (orientation_error > RESIDUAL_TOL_RAD)
     # An unsolved sample with no geometric excess still counts as out of reach, by its miss.
     reach = np.where(missed & (reach == 0), np.maximum(position_error, 1e-12), reach)

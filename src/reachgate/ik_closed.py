@@ -17,7 +17,7 @@ from itertools import product
 
 import numpy as np
 
-from reachgate.kinematics import compose_links
+from reachgate.kinematics import IDENTITY_COLUMNS, compose_links
 from reachgate.robot import Chain
 
 #: DH parameters closer than this to the special values count as equal (m or rad).
@@ -82,6 +82,17 @@ def is_spherical_wrist(chain: Chain) -> bool:
     )
 
 
+def _combine(arrays, weights, start=None):
+    """start + Σ weights[k] · arrays[k] on (N,) arrays, skipping zero and unit weights."""
+    total = start
+    for array, weight in zip(arrays, weights, strict=True):
+        if weight == 0.0:
+            continue
+        term = array if weight == 1.0 else weight * array
+        total = term if total is None else total + term
+    return total
+
+
 class SphericalWristSolver:
     """Closed-form solver for one chain; see the module docstring for the geometry."""
 
@@ -128,15 +139,7 @@ class SphericalWristSolver:
 
     def _first_three_columns(self, theta123: np.ndarray):
         """Frame 3's axes x, y, z and origin p as lists of three (N,) arrays."""
-        one, zero = np.float64(1.0), np.float64(0.0)
-        return compose_links(
-            self._links123,
-            theta123,
-            [one, zero, zero],
-            [zero, one, zero],
-            [zero, zero, one],
-            [zero, zero, zero],
-        )
+        return compose_links(self._links123, theta123, *IDENTITY_COLUMNS)
 
     def _frame3_axes(self, theta1: np.ndarray, phi: np.ndarray):
         """Frame 3's axes x, y, z (each three (N,) arrays) in the chain frame.
@@ -159,12 +162,21 @@ class SphericalWristSolver:
 
     def solve(self, chain_T_flange: np.ndarray, branch: Branch) -> WristSolution:
         """Solve (N, 4, 4) flange poses (in the chain's base frame) on one branch."""
-        R06 = chain_T_flange[:, :3, :3]
+        n = chain_T_flange.shape[0]
+        rows = np.empty((12, n))
+        rows[:9] = chain_T_flange[:, :3, :3].reshape(n, 9).T
+        rows[9:] = chain_T_flange[:, :3, 3].T
+        return self.solve_rows(rows, branch)
+
+    def solve_rows(self, rows: np.ndarray, branch: Branch) -> WristSolution:
+        """Solve flange poses given as rows (>= 12, N) on one branch.
+
+        Rows 0-8 hold the flange rotation's entries row by row, rows 9-11 its origin, in the
+        chain's base frame (as ik.target_rows builds them).
+        """
+        R = [[rows[3 * i + k] for k in range(3)] for i in range(3)]  # R[i][k]: (N,)
         f = self.flange_to_centre
-        centre = chain_T_flange[:, :3, 3] - (
-            R06[:, :, 0] * f[0] + R06[:, :, 1] * f[1] + R06[:, :, 2] * f[2]
-        )
-        wx, wy, wz = centre[:, 0], centre[:, 1], centre[:, 2]
+        wx, wy, wz = (_combine([R[i][k] for k in range(3)], -f, rows[9 + i]) for i in range(3))
         h = self.lateral_m
 
         # joint 1: the horizontal reach A = ±sqrt(ρ² - h²) along the arm plane
@@ -189,10 +201,10 @@ class SphericalWristSolver:
         x3, y3, z3 = self._frame3_axes(theta1, theta2 + self.eps * theta3)
         # columns of M = R06 Rx(α6)ᵀ, then R'[i, j] = (column i of R03) · (column j of M)
         Rt = self.rx_alpha6_T
-        M = [sum(R06[:, :, k] * Rt[k, j] for k in range(3)) for j in range(3)]  # (N, 3) each
+        M = [[_combine(R[i], Rt[:, j]) for i in range(3)] for j in range(3)]  # M[j][i]: (N,)
 
         def dot(column, j):
-            return column[0] * M[j][:, 0] + column[1] * M[j][:, 1] + column[2] * M[j][:, 2]
+            return column[0] * M[j][0] + column[1] * M[j][1] + column[2] * M[j][2]
 
         r02, r12, r22, r20, r21 = dot(x3, 2), dot(y3, 2), dot(z3, 2), dot(z3, 0), dot(z3, 1)
         w, s4, s5 = branch.wrist, self.s4, self.s5

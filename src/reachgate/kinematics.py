@@ -74,31 +74,81 @@ def chain_frames(robot: Robot, q: np.ndarray) -> np.ndarray:
     return frames
 
 
+#: |cos α| or |sin α| within this of 0 or 1 is taken as exactly that, so that links with
+#: α = 0 or ±90° (most arms) skip the terms that vanish.
+UNIT_SNAP = 1e-12
+#: The identity frame as columns (x, y, z axes and origin) for compose_links.
+IDENTITY_COLUMNS = ([1.0, 0.0, 0.0], [0.0, 1.0, 0.0], [0.0, 0.0, 1.0], [0.0, 0.0, 0.0])
+
+
+def _snap(value: float) -> float:
+    for exact in (0.0, 1.0, -1.0):
+        if abs(value - exact) < UNIT_SNAP:
+            return exact
+    return value
+
+
+# Products and sums of frame columns where an entry may be a plain float; exact zeros and
+# unit factors cost no array operation.
+def _mul(a, b):
+    for u, v in ((a, b), (b, a)):
+        if isinstance(u, float):
+            if u == 0.0:
+                return 0.0
+            if u == 1.0:
+                return v
+            if u == -1.0:
+                return -v
+    return a * b
+
+
+def _add(a, b):
+    if isinstance(b, float) and b == 0.0:
+        return a
+    if isinstance(a, float) and a == 0.0:
+        return b
+    return a + b
+
+
+def _sub(a, b):
+    if isinstance(b, float) and b == 0.0:
+        return a
+    if isinstance(a, float) and a == 0.0:
+        return -b
+    return a - b
+
+
 def compose_links(chain: Chain, q_arm: np.ndarray, x, y, z, p):
     """Walk the DH chain on frame columns held as separate (N,) arrays.
 
-    x, y, z: the current frame's axes, p: its origin, each a list of three (N,) or scalar
-    arrays in some fixed frame. Returns the flange's (x, y, z, p) in that frame. One link is
-    Rz(θ) Tz(d) Tx(a) Rx(α) written out on columns: contiguous (N,) arrays instead of strided
-    (N, 4, 4) products, which is what makes long paths fast.
+    x, y, z: the current frame's axes, p: its origin, each a list of three (N,) arrays or
+    floats in some fixed frame (IDENTITY_COLUMNS to start in the chain's base frame). Returns
+    the flange's (x, y, z, p) in that frame, every entry an (N,) array. One link is
+    Rz(θ) Tz(d) Tx(a) Rx(α) written out on columns: contiguous (N,) arrays instead of
+    strided (N, 4, 4) products, which is what makes long paths fast.
     """
+    n_samples = q_arm.shape[0]
     for i in range(chain.n):
         qi = q_arm[:, i]
+        offset = float(chain.theta_offset_rad[i])
         if chain.revolute[i]:
-            theta, d = qi + chain.theta_offset_rad[i], chain.d_m[i]
+            theta, d = (qi + offset if offset else qi), float(chain.d_m[i])
         else:
-            theta, d = chain.theta_offset_rad[i], qi + chain.d_m[i]
+            theta, d = offset, qi + chain.d_m[i]
         ct, st = np.cos(theta), np.sin(theta)
-        ca, sa = float(np.cos(chain.alpha_rad[i])), float(np.sin(chain.alpha_rad[i]))
+        ca, sa = _snap(float(np.cos(chain.alpha_rad[i]))), _snap(float(np.sin(chain.alpha_rad[i])))
         a = float(chain.a_m[i])
-        p = [p[k] + d * z[k] for k in range(3)]
-        x_new = [ct * x[k] + st * y[k] for k in range(3)]
-        y_rot = [ct * y[k] - st * x[k] for k in range(3)]
-        y_new = [ca * y_rot[k] + sa * z[k] for k in range(3)]
-        z_new = [ca * z[k] - sa * y_rot[k] for k in range(3)]
-        p = [p[k] + a * x_new[k] for k in range(3)] if a != 0.0 else p
+        p = [_add(p[k], _mul(d, z[k])) for k in range(3)]
+        x_new = [_add(_mul(ct, x[k]), _mul(st, y[k])) for k in range(3)]
+        y_rot = [_sub(_mul(ct, y[k]), _mul(st, x[k])) for k in range(3)]
+        y_new = [_add(_mul(ca, y_rot[k]), _mul(sa, z[k])) for k in range(3)]
+        z_new = [_sub(_mul(ca, z[k]), _mul(sa, y_rot[k])) for k in range(3)]
+        p = [_add(p[k], _mul(a, x_new[k])) for k in range(3)]
         x, y, z = x_new, y_new, z_new
-    return x, y, z, p
+    return tuple(
+        [np.full(n_samples, v) if isinstance(v, float) else v for v in column]
+        for column in (x, y, z, p)
+    )
 
 
 def tcp_columns(robot: Robot, q: np.ndarray):
