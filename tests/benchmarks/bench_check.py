@@ -27,7 +27,6 @@ import statistics
 import time
 
 import numpy as np
-from roboticstoolbox import DHRobot, RevoluteDH
 
 import reachgate
 from reachgate import CheckSettings, RailPolicy
@@ -121,6 +120,9 @@ def toolbox_loop(robot: reachgate.Robot, path: reachgate.Trajectory, rail_m, q_o
 
     Returns (wall time s, q (count, n) or NaN where ik_LM failed, manipulability (count,)).
     """
+    # imported here so that a process using only the path generators stays free of it
+    from roboticstoolbox import DHRobot, RevoluteDH
+
     chain = robot.chain
     links = [
         RevoluteDH(a=a, alpha=alpha, d=d, offset=theta)
@@ -152,8 +154,12 @@ def toolbox_loop(robot: reachgate.Robot, path: reachgate.Trajectory, rail_m, q_o
     return wall, q, w
 
 
-def run_case(label, robot, path, settings, loop_samples, repeats):
-    wall_ours, report = time_check(robot, path, settings, repeats)
+def loop_comparison(robot, path, report, loop_samples):
+    """The toolbox loop on the first `loop_samples` samples (0 = all) against a check's report.
+
+    Returns a dict: loop (samples looped), tb_s, tb_rate (samples/s), both (samples where
+    both succeed), tb_failed, worst_rad (max joint difference), w_min, w_worst.
+    """
     q_all = report.solution.q
     rail_m = q_all[:, 0] if robot.has_rail else None
     q_arm = q_all[:, 1:] if robot.has_rail else q_all
@@ -165,26 +171,40 @@ def run_case(label, robot, path, settings, loop_samples, repeats):
     worst = float(diff.max()) if diff.size else float("nan")
     w_ours = arm_manipulability(robot, q_all[:count][both])
     w_worst = float(np.abs(w_ours - w_tb[both]).max()) if diff.size else float("nan")
+    return dict(
+        loop=count,
+        tb_s=wall_tb,
+        tb_rate=count / wall_tb,
+        both=int(both.sum()),
+        tb_failed=int(np.isnan(q_tb[:, 0]).sum()),
+        worst_rad=worst,
+        w_min=float(np.nanmin(w_tb)),
+        w_worst=w_worst,
+    )
+
+
+def run_case(label, robot, path, settings, loop_samples, repeats):
+    wall_ours, report = time_check(robot, path, settings, repeats)
+    loop = loop_comparison(robot, path, report, loop_samples)
     ours_rate = path.n_samples / wall_ours
-    tb_rate = count / wall_tb
     return dict(
         case=label,
         solver=report.solution.solver.value,
         samples=path.n_samples,
         ours_s=wall_ours,
         ours_rate=ours_rate,
-        loop=count,
-        tb_s=wall_tb,
-        tb_rate=tb_rate,
-        tb_scaled_s=path.n_samples / tb_rate,
-        ratio=ours_rate / tb_rate,
-        both=int(both.sum()),
-        tb_failed=int(np.isnan(q_tb[:, 0]).sum()),
-        worst_rad=worst,
-        agree=bool(worst <= AGREEMENT_TOL_RAD),
+        loop=loop["loop"],
+        tb_s=loop["tb_s"],
+        tb_rate=loop["tb_rate"],
+        tb_scaled_s=path.n_samples / loop["tb_rate"],
+        ratio=ours_rate / loop["tb_rate"],
+        both=loop["both"],
+        tb_failed=loop["tb_failed"],
+        worst_rad=loop["worst_rad"],
+        agree=bool(loop["worst_rad"] <= AGREEMENT_TOL_RAD),
         verdict=report.verdict.value,
-        w_min=float(np.nanmin(w_tb)),
-        w_worst=w_worst,
+        w_min=loop["w_min"],
+        w_worst=loop["w_worst"],
     )
 
 
