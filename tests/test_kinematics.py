@@ -22,7 +22,13 @@ from scipy.spatial.transform import Rotation
 from spatialmath import SE3
 
 import reachgate
-from reachgate.kinematics import arm_manipulability, forward, jacobian, manipulability
+from reachgate.kinematics import (
+    arm_manipulability,
+    chain_pose_jacobian,
+    forward,
+    jacobian,
+    manipulability,
+)
 from reachgate.robot import robot_from_dict
 from reachgate.transforms import transform_from_xyz_rpy
 
@@ -182,6 +188,38 @@ def se3(T: np.ndarray) -> SE3:
 
 
 # --- against roboticstoolbox's DHRobot ---------------------------------------------------
+
+
+@pytest.mark.parametrize(
+    ("name", "seed"), [(name, 140 + i) for i, name in enumerate(ARMS)], ids=list(ARMS)
+)
+def test_chain_pose_and_jacobian_match_roboticstoolbox_dhrobot(name, seed):
+    """Source: roboticstoolbox DHRobot.fkine and .jacob0 on the canonical chain's own DH
+    numbers (no base, no tool): what the numeric IK iterates on."""
+    spec = ARMS[name]
+    robot = robot_from_dict(robot_dict(spec))
+    chain = robot.chain
+    rng = np.random.default_rng(seed)
+    q = random_configurations(spec, rng, 40)
+    q_arm = q[:, 1:] if robot.has_rail else q
+    links = [
+        RevoluteDH(a=a, alpha=alpha, d=d, offset=theta)
+        if revolute
+        else PrismaticDH(theta=theta, a=a, alpha=alpha, offset=d, qlim=[-10.0, 10.0])
+        for a, alpha, d, theta, revolute in zip(
+            chain.a_m,
+            chain.alpha_rad,
+            chain.d_m,
+            chain.theta_offset_rad,
+            chain.revolute,
+            strict=True,
+        )
+    ]
+    reference = DHRobot(links)
+    T, J = chain_pose_jacobian(chain, q_arm)
+    for k in range(q_arm.shape[0]):
+        np.testing.assert_allclose(T[k], reference.fkine(q_arm[k]).A, atol=REFERENCE_TOL)
+        np.testing.assert_allclose(J[k], reference.jacob0(q_arm[k]), atol=REFERENCE_TOL)
 
 
 @pytest.mark.parametrize(

@@ -118,6 +118,31 @@ def _sub(a, b):
     return a - b
 
 
+def _link_step(chain: Chain, i: int, qi: np.ndarray, x, y, z, p):
+    """Frame columns (x, y, z, p) after link i at joint values qi (N,); see compose_links."""
+    offset = float(chain.theta_offset_rad[i])
+    if chain.revolute[i]:
+        theta, d = (qi + offset if offset else qi), float(chain.d_m[i])
+    else:
+        theta, d = offset, qi + chain.d_m[i]
+    ct, st = np.cos(theta), np.sin(theta)
+    ca, sa = _snap(float(np.cos(chain.alpha_rad[i]))), _snap(float(np.sin(chain.alpha_rad[i])))
+    a = float(chain.a_m[i])
+    p = [_add(p[k], _mul(d, z[k])) for k in range(3)]
+    x_new = [_add(_mul(ct, x[k]), _mul(st, y[k])) for k in range(3)]
+    y_rot = [_sub(_mul(ct, y[k]), _mul(st, x[k])) for k in range(3)]
+    y_new = [_add(_mul(ca, y_rot[k]), _mul(sa, z[k])) for k in range(3)]
+    z_new = [_sub(_mul(ca, z[k]), _mul(sa, y_rot[k])) for k in range(3)]
+    p = [_add(p[k], _mul(a, x_new[k])) for k in range(3)]
+    return x_new, y_new, z_new, p
+
+
+def _as_arrays(columns, n_samples: int):
+    return tuple(
+        [np.full(n_samples, v) if isinstance(v, float) else v for v in column] for column in columns
+    )
+
+
 def compose_links(chain: Chain, q_arm: np.ndarray, x, y, z, p):
     """Walk the DH chain on frame columns held as separate (N,) arrays.
 
@@ -127,28 +152,9 @@ def compose_links(chain: Chain, q_arm: np.ndarray, x, y, z, p):
     Rz(θ) Tz(d) Tx(a) Rx(α) written out on columns: contiguous (N,) arrays instead of
     strided (N, 4, 4) products, which is what makes long paths fast.
     """
-    n_samples = q_arm.shape[0]
     for i in range(chain.n):
-        qi = q_arm[:, i]
-        offset = float(chain.theta_offset_rad[i])
-        if chain.revolute[i]:
-            theta, d = (qi + offset if offset else qi), float(chain.d_m[i])
-        else:
-            theta, d = offset, qi + chain.d_m[i]
-        ct, st = np.cos(theta), np.sin(theta)
-        ca, sa = _snap(float(np.cos(chain.alpha_rad[i]))), _snap(float(np.sin(chain.alpha_rad[i])))
-        a = float(chain.a_m[i])
-        p = [_add(p[k], _mul(d, z[k])) for k in range(3)]
-        x_new = [_add(_mul(ct, x[k]), _mul(st, y[k])) for k in range(3)]
-        y_rot = [_sub(_mul(ct, y[k]), _mul(st, x[k])) for k in range(3)]
-        y_new = [_add(_mul(ca, y_rot[k]), _mul(sa, z[k])) for k in range(3)]
-        z_new = [_sub(_mul(ca, z[k]), _mul(sa, y_rot[k])) for k in range(3)]
-        p = [_add(p[k], _mul(a, x_new[k])) for k in range(3)]
-        x, y, z = x_new, y_new, z_new
-    return tuple(
-        [np.full(n_samples, v) if isinstance(v, float) else v for v in column]
-        for column in (x, y, z, p)
-    )
+        x, y, z, p = _link_step(chain, i, q_arm[:, i], x, y, z, p)
+    return _as_arrays((x, y, z, p), q_arm.shape[0])
 
 
 def tcp_columns(robot: Robot, q: np.ndarray):
@@ -210,19 +216,31 @@ def chain_pose_jacobian(chain: Chain, q_arm: np.ndarray) -> tuple[np.ndarray, np
 
     (N, n) arm values -> ((N, 4, 4) chain_T_flange, (N, 6, n) Jacobian at the flange origin).
     """
-    A = dh_transforms(chain, q_arm)
-    n_samples = A.shape[0]
-    T = np.broadcast_to(np.eye(4), (n_samples, 4, 4))
-    z = np.empty((n_samples, chain.n, 3))
-    origins = np.empty((n_samples, chain.n, 3))
+    q_arm = np.asarray(q_arm, dtype=float)
+    n_samples = q_arm.shape[0]
+    x, y, z, p = IDENTITY_COLUMNS
+    axes, origins = [], []
     for i in range(chain.n):
-        z[:, i] = T[:, :3, 2]
-        origins[:, i] = T[:, :3, 3]
-        T = T @ A[:, i]
-    revolute = chain.revolute[None, :, None]
-    linear = np.where(revolute, np.cross(z, T[:, None, :3, 3] - origins), z)
-    angular = np.where(revolute, z, 0.0)
-    return T, np.concatenate([linear, angular], axis=2).transpose(0, 2, 1)
+        axes.append(z)
+        origins.append(p)
+        x, y, z, p = _link_step(chain, i, q_arm[:, i], x, y, z, p)
+    J = np.zeros((n_samples, 6, chain.n))
+    for i, (zi, oi) in enumerate(zip(axes, origins, strict=True)):
+        if chain.revolute[i]:
+            lever = [_sub(p[k], oi[k]) for k in range(3)]
+            for k in range(3):  # z × lever
+                a, b = (k + 1) % 3, (k + 2) % 3
+                J[:, k, i] = _sub(_mul(zi[a], lever[b]), _mul(zi[b], lever[a]))
+                J[:, 3 + k, i] = zi[k]
+        else:
+            for k in range(3):
+                J[:, k, i] = zi[k]
+    T = np.zeros((n_samples, 4, 4))
+    for c, column in enumerate((x, y, z, p)):
+        for k in range(3):
+            T[:, k, c] = column[k]
+    T[:, 3, 3] = 1.0
+    return T, J
 
 
 def manipulability(J: np.ndarray) -> np.ndarray:
