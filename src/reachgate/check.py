@@ -289,6 +289,7 @@ def _rate_rows(robot: Robot, t: np.ndarray, q: np.ndarray, trusted: np.ndarray):
         rates = time_derivatives(t[lo:hi], q[lo:hi])
         inner = slice(first - lo, last - lo)
         ok = trusted[first:last]
+        every_sample_trusted = bool(ok.all())
         by_kind = {
             Check.SPEED: rates.velocity,
             Check.ACCEL: rates.acceleration,
@@ -299,7 +300,9 @@ def _rate_rows(robot: Robot, t: np.ndarray, q: np.ndarray, trusted: np.ndarray):
                 if (axis.name, kind) not in streams:
                     continue
                 stream, limit = streams[axis.name, kind]
-                magnitude = np.where(ok, np.abs(values[inner, i]), 0.0)
+                magnitude = np.abs(values[inner, i])
+                if not every_sample_trusted:
+                    magnitude[~ok] = 0.0
                 stream.feed(t[first:last], magnitude - limit, magnitude, limit)
                 peaks[axis.name, kind] = max(peaks[axis.name, kind], float(np.max(magnitude)))
     rows: list[Violation] = []

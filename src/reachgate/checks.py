@@ -118,6 +118,13 @@ class IntervalStream:
     def feed(self, t_s, excess, worst_value, limit_value) -> None:
         """Add one chunk: t_s, excess, worst_value (n,) and limit_value scalar or (n,)."""
         excess = np.asarray(excess, dtype=float)
+        if excess.size and float(excess.max()) <= -max(self.band, 0.0):
+            # no sample over or near the limit: only runs left open by the last chunk end
+            for severity, pending in self._open.items():
+                if pending is not None:
+                    self._close(severity, pending)
+                self._open[severity] = None
+            return
         limit_value = np.broadcast_to(np.asarray(limit_value, dtype=float), excess.shape)
         over = excess > 0
         self._feed_runs(Severity.VIOLATION, over, None, t_s, excess, worst_value, limit_value)

@@ -9,8 +9,8 @@ The fit depends on the times alone, so for every sample one weight row per deriv
 is computed once from t, (N, window), and applied to all k signal columns. Each window's times
 are mapped onto [-1, 1] and fitted in the Legendre basis, which keeps the small normal
 equations well conditioned (see derivative_weights). Work goes in blocks of CHUNK_SAMPLES
-samples, spread over THREADS threads; the result does not depend on either (on even
-steps each block's model window takes that block's mean step: ~1e-13 relative).
+samples, spread over THREADS threads; the result does not depend on either. Evenly spaced
+samples share one set of weights and go in one pass of compiled convolutions.
 """
 
 from __future__ import annotations
@@ -160,23 +160,21 @@ def _apply_weights(signals, out, lo, hi, starts, weights) -> None:
 def _apply_centred_weights(signals, out, lo, hi, weights) -> None:
     """Like _apply_weights for windows centred on their samples with one weight row each.
 
-    weights: (3, w), w odd. With d_m = x[i+m] - x[i-m] and s_m = x[i+m] + x[i-m] - 2 x[i],
-    sum_j w_j (x[i+j-h] - x[i]) = sum_m ((w_{h+m} - w_{h-m}) d_m + (w_{h+m} + w_{h-m}) s_m) / 2
-    exactly, so the six terms go through one small matrix product instead of 3·w updates.
+    weights: (3, w). sum_j w_j (x[i+j-h] - x[i]) equals sum_j C_j (x[i+j-h+1] - x[i+j-h])
+    with C_j = -(w_0 + ... + w_j) (summation by parts; the w_j sum to zero up to rounding,
+    which the left side removes too), so each signal goes through one compiled convolution
+    of its first differences per order instead of 3·w array updates.
     """
     half = weights.shape[1] // 2
-    k, c = signals.shape[0], hi - lo
-    centre = signals[:, lo:hi]
-    twice_centre = 2.0 * centre
-    terms = np.empty((2 * half, k, c))
-    for m in range(1, half + 1):
-        ahead, behind = signals[:, lo + m : hi + m], signals[:, lo - m : hi - m]
-        np.subtract(ahead, behind, out=terms[m - 1])
-        np.add(ahead, behind, out=terms[half + m - 1])
-        terms[half + m - 1] -= twice_centre
-    after, before = weights[:, half + 1 :], weights[:, half - 1 :: -1]  # [:, m - 1]: w_{h±m}
-    combined = 0.5 * np.concatenate([after - before, after + before], axis=1)  # (3, 2h)
-    out[:, :, lo:hi] = (combined @ terms.reshape(2 * half, k * c)).reshape(3, k, c)
+    steps = np.diff(signals[:, lo - half : hi + half], axis=1)  # (k, c + 2h - 1)
+    kernels = -np.cumsum(weights[:, :-1], axis=1)[:, ::-1]  # reversed: convolve flips
+    for r in range(len(_ORDERS)):
+        for s, row in enumerate(steps):
+            out[r, s, lo:hi] = np.convolve(row, kernels[r], mode="valid")
+
+
+def _evenly_spaced(steps: np.ndarray) -> bool:
+    return bool(np.ptp(steps) <= EVEN_STEP_RTOL * steps[0])
 
 
 def _derivatives_of_block(
@@ -187,7 +185,7 @@ def _derivatives_of_block(
     window = min(WINDOW_SAMPLES, n)
     span = t_s[max(lo - window, 0) : min(hi + window, n)]
     steps = np.diff(span)
-    if np.ptp(steps) > EVEN_STEP_RTOL * steps[0]:
+    if not _evenly_spaced(steps):
         starts, weights = derivative_weights(t_s, np.arange(lo, hi), window, degree)
         _apply_weights(signals, out, lo, hi, starts, weights)
         return
@@ -221,8 +219,7 @@ def time_derivatives(
     With N < WINDOW_SAMPLES the fit uses all N samples with degree min(FIT_DEGREE, N - 1):
     N = 2 gives the difference quotient as velocity and zero acceleration and jerk.
     Blocks of chunk_samples are independent, so the result does not depend on chunk_samples
-    or threads (to rounding on even steps, see the module docstring); numpy releases the GIL
-    inside its loops, so threads share the work.
+    or threads; numpy releases the GIL inside its loops, so threads share the work.
     """
     t_s = np.asarray(t_s, dtype=float)
     x = np.asarray(x, dtype=float)
@@ -234,6 +231,8 @@ def time_derivatives(
     degree = min(FIT_DEGREE, min(WINDOW_SAMPLES, n) - 1)
     signals = np.ascontiguousarray(x2.T)  # (k, N): samples last, like the weights
     out = np.empty((len(_ORDERS), signals.shape[0], n))
+    if _evenly_spaced(np.diff(t_s)):  # one pass: the compiled convolutions need no blocks
+        chunk_samples = n
     bounds = [(lo, min(lo + chunk_samples, n)) for lo in range(0, n, chunk_samples)]
     if threads > 1 and len(bounds) > 1:
         with ThreadPoolExecutor(max_workers=threads) as pool:

@@ -67,9 +67,7 @@ TARGET_ROWS = 15
 
 # A unit quaternion's rotation entries (row by row) as a linear map of its ten quadratic
 # monomials w², x², y², z², wx, wy, wz, xy, xz, yz (the homogeneous form of the usual matrix).
-_MONOMIAL_PAIRS = np.array(
-    [(0, 0), (1, 1), (2, 2), (3, 3), (0, 1), (0, 2), (0, 3), (1, 2), (1, 3), (2, 3)]
-)
+_MONOMIAL_PAIRS = ((0, 0), (1, 1), (2, 2), (3, 3), (0, 1), (0, 2), (0, 3), (1, 2), (1, 3), (2, 3))
 _QUAT_TO_ROTATION = np.array(
     [
         [1, 1, -1, -1, 0, 0, 0, 0, 0, 0],  # r00 = w² + x² - y² - z²
@@ -110,34 +108,34 @@ def target_map(robot: Robot, cell_T_scenario: np.ndarray) -> np.ndarray:
     return W
 
 
-def _apply_map(W: np.ndarray, features: np.ndarray, rail_m: np.ndarray | None) -> np.ndarray:
-    """W (15, k + 2) with its last two columns for rail_m and 1; features (k, N) -> (15, N)."""
-    rows = W[:, :-2] @ features
-    rows += W[:, -1:]
-    if rail_m is not None:
-        rows += W[:, -2:-1] * rail_m
-    return rows
+def _features(pose_terms: int, p_m: np.ndarray, rail_m: np.ndarray | None) -> np.ndarray:
+    """Feature rows (pose_terms + 5, N): pose terms left for the caller, p, rail_m, 1."""
+    n = p_m.shape[0]
+    features = np.empty((pose_terms + 5, n))
+    features[pose_terms : pose_terms + 3] = p_m.T
+    features[-2] = 0.0 if rail_m is None else rail_m
+    features[-1] = 1.0
+    return features
 
 
 def target_rows_from_quaternions(
     W: np.ndarray, q_wxyz: np.ndarray, p_m: np.ndarray, rail_m: np.ndarray | None
 ) -> np.ndarray:
     """Target rows (15, N) of scenario poses given as (N, 4) unit quaternions and (N, 3) m."""
-    q_rows = q_wxyz.T
-    features = np.empty((13, q_wxyz.shape[0]))
-    np.multiply(q_rows[_MONOMIAL_PAIRS[:, 0]], q_rows[_MONOMIAL_PAIRS[:, 1]], out=features[:10])
-    features[10:] = p_m.T
+    q_rows = np.ascontiguousarray(q_wxyz.T)  # (4, N)
+    features = _features(10, p_m, rail_m)
+    for m, (i, j) in enumerate(_MONOMIAL_PAIRS):  # row by row: a fancy-index gather is slower
+        np.multiply(q_rows[i], q_rows[j], out=features[m])
     W_quat = np.concatenate([W[:, :9] @ _QUAT_TO_ROTATION, W[:, 9:]], axis=1)
-    return _apply_map(W_quat, features, rail_m)
+    return W_quat @ features
 
 
 def target_rows(robot: Robot, cell_T_tool: np.ndarray, rail_m: np.ndarray | None) -> np.ndarray:
     """Target rows (15, N) of (N, 4, 4) TCP poses in the cell at rail positions (N,) or None."""
     n = cell_T_tool.shape[0]
-    features = np.empty((12, n))
+    features = _features(9, cell_T_tool[:, :3, 3], rail_m)
     features[:9] = cell_T_tool[:, :3, :3].reshape(n, 9).T
-    features[9:] = cell_T_tool[:, :3, 3].T
-    return _apply_map(target_map(robot, np.eye(4)), features, rail_m)
+    return target_map(robot, np.eye(4)) @ features
 
 
 def rows_to_matrices(rows: np.ndarray) -> np.ndarray:
@@ -161,11 +159,12 @@ def continuous_angles(theta: np.ndarray, reference: np.ndarray) -> np.ndarray:
     (N, k) angles, (k,) reference -> (N, k); each sample is within π of the previous one.
     """
     rows = theta.T  # (k, N): contiguous when theta is a transposed view, as the solvers give
-    turns = np.round(np.diff(rows, axis=1) / TWO_PI)
     out = np.empty(rows.shape)
-    out[:, 0] = rows[:, 0]
-    out[:, 1:] = rows[:, 1:] - TWO_PI * np.cumsum(turns, axis=1)
-    out += TWO_PI * np.round((reference - out[:, 0]) / TWO_PI)[:, None]
+    for row, values, start in zip(out, rows, reference, strict=True):
+        turns = np.round(np.diff(values) / TWO_PI)
+        row[:] = values + TWO_PI * np.round((start - values[0]) / TWO_PI)
+        if turns.any():  # most joints never wrap on a path: skip the running sum
+            row[1:] -= TWO_PI * np.cumsum(turns)
     return out.T  # (N, k), each column contiguous
 
 
@@ -189,6 +188,7 @@ def solve_trajectory(
     """
     n = trajectory.n_samples
     W = target_map(robot, cell_T_scenario)
+    solver = _closed_form(robot)
     parts: list[PathSolution] = []
     start_arm = None
     for first in range(0, n, chunk_samples):
@@ -197,7 +197,7 @@ def solve_trajectory(
         rows = target_rows_from_quaternions(
             W, trajectory.scenario_q_wxyz[part], trajectory.scenario_p_m[part], rail_part
         )
-        solved = _solve_rows(robot, rows, rail_part, start_arm)
+        solved = _solve_rows(robot, rows, rail_part, start_arm, solver)
         parts.append(solved)
         start_arm = solved.q[-1, 1:] if robot.has_rail else solved.q[-1]
     if len(parts) == 1:
@@ -244,23 +244,35 @@ def solve_path(
     start_arm: (n,) arm values the path continues from (default: home); the branch is always
     the home configuration's.
     """
-    return _solve_rows(robot, target_rows(robot, cell_T_tool, rail_m), rail_m, start_arm)
+    rows = target_rows(robot, cell_T_tool, rail_m)
+    return _solve_rows(robot, rows, rail_m, start_arm, _closed_form(robot))
+
+
+def _closed_form(robot: Robot) -> tuple[SphericalWristSolver, Branch] | None:
+    """The closed-form solver and the home configuration's branch, or None (numeric arm)."""
+    if not is_spherical_wrist(robot.chain):
+        return None
+    solver = SphericalWristSolver(robot.chain)
+    home_arm = robot.home[1:] if robot.has_rail else robot.home
+    return solver, solver.branch_of(home_arm + robot.chain.theta_offset_rad)
 
 
 def _solve_rows(
-    robot: Robot, rows: np.ndarray, rail_m: np.ndarray | None, start_arm: np.ndarray | None
+    robot: Robot,
+    rows: np.ndarray,
+    rail_m: np.ndarray | None,
+    start_arm: np.ndarray | None,
+    closed_form: tuple[SphericalWristSolver, Branch] | None,
 ) -> PathSolution:
     """solve_path on target rows (15, N) (see target_map)."""
     chain = robot.chain
     arm = slice(1, None) if robot.has_rail else slice(None)
-    home_arm = robot.home[arm]
-    previous = home_arm if start_arm is None else np.asarray(start_arm, dtype=float)
+    previous = robot.home[arm] if start_arm is None else np.asarray(start_arm, dtype=float)
     lower, upper = robot.lower[arm], robot.upper[arm]
     n_samples = rows.shape[1]
 
-    if is_spherical_wrist(chain):
-        solver = SphericalWristSolver(chain)
-        branch = solver.branch_of(home_arm + chain.theta_offset_rad)
+    if closed_form is not None:
+        solver, branch = closed_form
         sol = solver.solve_rows(rows, branch)
         q_arm = continuous_angles(sol.theta - chain.theta_offset_rad, previous)
         reach = sol.reach_excess_m

@@ -19,6 +19,7 @@ import numpy as np
 
 from reachgate.kinematics import IDENTITY_COLUMNS, compose_links
 from reachgate.robot import Chain
+from reachgate.transforms import cos_sin
 
 #: DH parameters closer than this to the special values count as equal (m or rad).
 GEOMETRY_TOL = 1e-9
@@ -147,7 +148,7 @@ class SphericalWristSolver:
         With joints 2 and 3 parallel, R03 = Rz(θ1) Rx(α1) Rz(φ) Rx(β) where φ = θ2 + ε θ3 and
         β = α2 + α3 (Rx(π) Rz(θ) = Rz(-θ) Rx(π)), written out: four trig calls, not six.
         """
-        c1, s1, cp, sp = np.cos(theta1), np.sin(theta1), np.cos(phi), np.sin(phi)
+        (c1, s1), (cp, sp) = cos_sin(theta1), cos_sin(phi)
         ca, sa, cb, sb = self._ca1, self._sa1, self._cb, self._sb
         columns = (
             (cp, ca * sp, sa * sp),
@@ -188,13 +189,15 @@ class SphericalWristSolver:
         # joints 2, 3: a two-link problem in the arm plane
         x1 = along - self.a1
         y1 = self.s1 * (wz - self.d1)
-        r = np.hypot(x1, y1)
+        r = np.sqrt(x1 * x1 + y1 * y1)
         L1, L2 = self.a2, self.forearm_m
         cos_gamma = (r * r - L1 * L1 - L2 * L2) / (2 * L1 * L2)
         shell_excess_m = np.maximum(r - self.outer_radius_m, self.inner_radius_m - r)
-        gamma_abs = np.arccos(np.clip(cos_gamma, -1.0, 1.0))
+        cos_g = np.clip(cos_gamma, -1.0, 1.0)
+        gamma_abs = np.arccos(cos_g)
         gamma = branch.elbow * gamma_abs
-        theta2 = np.arctan2(y1, x1) - np.arctan2(L2 * np.sin(gamma), L1 + L2 * np.cos(gamma))
+        sin_g = branch.elbow * np.sqrt((1.0 - cos_g) * (1.0 + cos_g))  # sin γ
+        theta2 = np.arctan2(y1, x1) - np.arctan2(L2 * sin_g, L1 + L2 * cos_g)
         theta3 = self.eps * (gamma - self.forearm_angle)
 
         # joints 4, 5, 6 from the wrist rotation R' = R03ᵀ R06 Rx(α6)ᵀ
@@ -208,7 +211,7 @@ class SphericalWristSolver:
 
         r02, r12, r22, r20, r21 = dot(x3, 2), dot(y3, 2), dot(z3, 2), dot(z3, 0), dot(z3, 1)
         w, s4, s5 = branch.wrist, self.s4, self.s5
-        sin5 = w * np.hypot(r02, r12)
+        sin5 = w * np.sqrt(r02 * r02 + r12 * r12)
         cos5 = -s4 * s5 * r22
         theta5 = np.arctan2(sin5, cos5)
         theta4 = np.arctan2(w * s5 * r12, w * s5 * r02)

@@ -9,6 +9,7 @@ from __future__ import annotations
 import numpy as np
 
 from reachgate.robot import Chain, Robot
+from reachgate.transforms import cos_sin
 
 
 def dh_transforms(chain: Chain, q_arm: np.ndarray) -> np.ndarray:
@@ -125,7 +126,7 @@ def _link_step(chain: Chain, i: int, qi: np.ndarray, x, y, z, p):
         theta, d = (qi + offset if offset else qi), float(chain.d_m[i])
     else:
         theta, d = offset, qi + chain.d_m[i]
-    ct, st = np.cos(theta), np.sin(theta)
+    ct, st = cos_sin(theta) if isinstance(theta, np.ndarray) else (np.cos(theta), np.sin(theta))
     ca, sa = _snap(float(np.cos(chain.alpha_rad[i]))), _snap(float(np.sin(chain.alpha_rad[i])))
     a = float(chain.a_m[i])
     p = [_add(p[k], _mul(d, z[k])) for k in range(3)]
