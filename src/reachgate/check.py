@@ -219,10 +219,13 @@ def check(robot: Robot, trajectory: Trajectory, settings: CheckSettings | None =
             unit="rad",
         )
     if settings.lag_s is not None:
-        delayed = np.column_stack(
-            [np.interp(t - settings.lag_s, t, cell_p_tcp[:, k]) for k in range(3)]
+        delayed_t = t - settings.lag_s
+        error_m = np.sqrt(
+            sum(
+                (cell_p_tcp[:, k] - np.interp(delayed_t, t, cell_p_tcp[:, k])) ** 2
+                for k in range(3)
+            )
         )
-        error_m = np.linalg.norm(cell_p_tcp - delayed, axis=1)
         rows += intervals(
             t,
             error_m - settings.lag_tol_m,

@@ -189,8 +189,12 @@ def solve_trajectory(
     n = trajectory.n_samples
     W = target_map(robot, cell_T_scenario)
     solver = _closed_form(robot)
-    parts: list[PathSolution] = []
-    start_arm = None
+    # filled chunk by chunk, so no list of parts is joined at the end
+    q_rows = np.empty((robot.n_axes, n))  # axis-major, as each chunk's q
+    reach, position, orientation = np.empty(n), np.empty(n), np.empty(n)
+    other_fits = np.empty(n, dtype=bool)
+    measures: dict[str, np.ndarray] = {}
+    solved, start_arm = None, None
     for first in range(0, n, chunk_samples):
         part = slice(first, min(first + chunk_samples, n))
         rail_part = None if rail_m is None else rail_m[part]
@@ -198,20 +202,25 @@ def solve_trajectory(
             W, trajectory.scenario_q_wxyz[part], trajectory.scenario_p_m[part], rail_part
         )
         solved = _solve_rows(robot, rows, rail_part, start_arm, solver)
-        parts.append(solved)
+        if part.stop - part.start == n:
+            return solved
         start_arm = solved.q[-1, 1:] if robot.has_rail else solved.q[-1]
-    if len(parts) == 1:
-        return parts[0]
-    first = parts[0]
+        q_rows[:, part] = solved.q.T
+        reach[part] = solved.reach_excess_m
+        position[part] = solved.position_error_m
+        orientation[part] = solved.orientation_error_rad
+        other_fits[part] = solved.other_branch_fits
+        for kind, values in solved.measures.items():
+            measures.setdefault(kind, np.empty(n))[part] = values
     return PathSolution(
-        q=np.concatenate([p.q.T for p in parts], axis=1).T,
-        solver=first.solver,
-        branch=first.branch,
-        reach_excess_m=np.concatenate([p.reach_excess_m for p in parts]),
-        position_error_m=np.concatenate([p.position_error_m for p in parts]),
-        orientation_error_rad=np.concatenate([p.orientation_error_rad for p in parts]),
-        other_branch_fits=np.concatenate([p.other_branch_fits for p in parts]),
-        measures={k: np.concatenate([p.measures[k] for p in parts]) for k in first.measures},
+        q=q_rows.T,
+        solver=solved.solver,
+        branch=solved.branch,
+        reach_excess_m=reach,
+        position_error_m=position,
+        orientation_error_rad=orientation,
+        other_branch_fits=other_fits,
+        measures=measures,
     )
 
 
