@@ -42,7 +42,7 @@ def test_chunked_solution_equals_one_solve(robot):
         np.testing.assert_array_equal(whole.measures[kind], chunked.measures[kind])
 
 
-@pytest.mark.parametrize("jitter", [0.0, 0.2])  # even steps take the compiled-filter path
+@pytest.mark.parametrize("jitter", [0.0, 0.2])
 def test_first_order_lowpass_matches_the_analytic_step_and_ramp_responses(jitter):
     """Analytic: a ramp u = r t from rest gives y = r (t - τ (1 - e^(-t/τ))) (linear ODE)."""
     rng = np.random.default_rng(21)

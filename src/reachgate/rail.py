@@ -12,9 +12,7 @@ import math
 from enum import Enum
 
 import numpy as np
-from scipy.signal import lfilter
 
-from reachgate.derivatives import EVEN_STEP_RTOL
 from reachgate.errors import ReachgateError
 from reachgate.kinematics import forward
 from reachgate.robot import Robot
@@ -49,15 +47,9 @@ def first_order_lowpass(t_s: np.ndarray, u: np.ndarray, tau_s: float) -> np.ndar
     y = np.empty_like(u)
     y[0] = u[0]
     dt = np.diff(t_s)
-    even = dt.size > 0 and np.ptp(dt) <= EVEN_STEP_RTOL * dt[0]
-    if even:  # one step for all: scalars, and the recurrence runs as a compiled filter
-        dt = float(np.mean(dt))
     gain = -np.expm1(-dt / tau_s)  # 1 - a_k for k >= 1
-    drive = u[1:] - (1.0 - gain) * u[:-1] - np.diff(u) * (gain * tau_s / dt)  # c_k, k >= 1
-    if even:
-        a = 1.0 - gain
-        y[1:], _ = lfilter([1.0], [1.0, -a], drive, zi=[a * y[0]])
-        return y
+    du = np.diff(u)
+    drive = u[1:] - (1.0 - gain) * u[:-1] - du * gain * (tau_s / dt)  # c_k for k >= 1
     start = 1
     block_s = _BLOCK_TIME_CONSTANTS * tau_s
     while start < u.size:
