@@ -20,6 +20,7 @@ from reachgate.check import CheckSettings, check
 from reachgate.cli import app
 from reachgate.kinematics import forward
 from reachgate.scan import (
+    WORKER_THREAD_VARIABLES,
     ScanProgress,
     _run_local,
     check_case,
@@ -404,6 +405,27 @@ def test_a_case_that_kills_its_worker_is_an_error_and_the_others_are_checked(rob
     assert by_path[paths[1]]["verdict"] == "error"
     assert "worker process died" in by_path[paths[1]]["error"]
     assert all(by_path[p]["verdict"] == "pass" for p in paths if p != paths[1])
+
+
+def _thread_settings_task(case_path, settings, robot_raw, robot_label):
+    """Stands in for check_case: reports the worker's thread-pool variables."""
+    return {"case_path": case_path, **{k: os.environ.get(k) for k in WORKER_THREAD_VARIABLES}}
+
+
+def test_workers_start_with_one_blas_thread_and_the_parent_keeps_its_environment(
+    tmp_path, monkeypatch
+):
+    for name in WORKER_THREAD_VARIABLES:
+        monkeypatch.delenv(name, raising=False)
+    monkeypatch.setenv("OMP_NUM_THREADS", "3")  # a user's own choice is kept
+    paths = [str(tmp_path / f"c{k}.csv") for k in range(2)]
+    raw = DEMO_ROBOT.read_bytes()
+    results = list(_run_local(paths, CheckSettings(), raw, "demo", 2, task=_thread_settings_task))
+    assert len(results) == 2
+    for result in results:
+        assert result["OPENBLAS_NUM_THREADS"] == "1" and result["MKL_NUM_THREADS"] == "1"
+        assert result["OMP_NUM_THREADS"] == "3"
+    assert "OPENBLAS_NUM_THREADS" not in os.environ
 
 
 def test_discovery_takes_files_folders_and_globs_once_each(tmp_path):
