@@ -143,18 +143,20 @@ def derivative_weights(
 
 def _apply_weights(signals, out, lo, hi, starts, weights) -> None:
     """out[:, :, lo:hi] = sum_j weights[:, j] * (x[starts + j] - x): (3, w, c) or (3, w, 1)."""
-    block = out[:, :, lo:hi]
-    block[...] = 0.0
     centre = signals[:, lo:hi]  # (k, c)
     contiguous = starts[-1] - starts[0] == starts.size - 1  # no window slid at an end
-    for j in range(weights.shape[1]):
+    window = weights.shape[1]
+    rel = np.empty((window, *centre.shape))  # (w, k, c): window sample j minus the sample
+    for j in range(window):
         if contiguous:  # a slice, not a gather
             shifted = signals[:, starts[0] + j : starts[0] + j + starts.size]
         else:
             shifted = signals[:, starts + j]
-        rel = shifted - centre  # (k, c): window sample j minus the sample
-        for r in range(len(_ORDERS)):
-            block[r] += weights[r, j] * rel
+        np.subtract(shifted, centre, out=rel[j])
+    if weights.shape[2] == 1:
+        out[:, :, lo:hi] = np.einsum("rj,jsc->rsc", weights[:, :, 0], rel)
+    else:
+        out[:, :, lo:hi] = np.einsum("rjc,jsc->rsc", weights, rel)
 
 
 def _apply_centred_weights(signals, out, lo, hi, weights) -> None:
