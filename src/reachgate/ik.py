@@ -14,6 +14,7 @@ from enum import Enum
 import numpy as np
 
 from reachgate.ik_closed import ALL_BRANCHES, Branch, SphericalWristSolver, is_spherical_wrist
+from reachgate.ik_configurations import fits_range, other_configuration_fits
 from reachgate.ik_numeric import solve_path_numeric
 from reachgate.kinematics import IDENTITY_COLUMNS, compose_links
 from reachgate.robot import Robot
@@ -45,7 +46,8 @@ class PathSolution:
     reach_excess_m: (N,) distance of the target out of reach (0 where reachable).
     position_error_m, orientation_error_rad: (N,) FK(q) residuals against the targets.
     other_branch_fits: (N,) True where the kept branch leaves a joint range but another
-        branch of the closed-form solution stays inside every range.
+        branch of the closed-form solution (general arms: another configuration the search
+        of ik_configurations finds) stays inside every range.
     measures: singularity measures by kind, each (N,): 'wrist', 'elbow' (rad),
         'shoulder' (m) for closed-form arms.
     """
@@ -168,12 +170,6 @@ def continuous_angles(theta: np.ndarray, reference: np.ndarray) -> np.ndarray:
     return out.T  # (N, k), each column contiguous
 
 
-def _fits_range(theta: np.ndarray, lower: np.ndarray, upper: np.ndarray) -> np.ndarray:
-    """(M, 6) angles -> (M,) True where every angle, shifted by whole turns, fits its range."""
-    shifted = lower + np.mod(theta - lower, TWO_PI)  # smallest value >= lower
-    return (shifted <= upper).all(axis=1)
-
-
 def solve_trajectory(
     robot: Robot,
     trajectory: Trajectory,
@@ -293,14 +289,20 @@ def _solve_rows(
                 if other == branch:
                     continue
                 alt = solver.solve_rows(rows[:, outside], other).theta - chain.theta_offset_rad
-                other_fits[outside] |= _fits_range(alt, lower, upper)
+                other_fits[outside] |= fits_range(alt, lower, upper)
         kind, kept = SolverKind.CLOSED_FORM, branch
     else:
-        numeric = solve_path_numeric(chain, rows_to_matrices(rows), previous)
+        targets = rows_to_matrices(rows)
+        numeric = solve_path_numeric(chain, targets, previous)
         q_arm = numeric.q_arm
         reach = np.where(numeric.solved, 0.0, numeric.position_error_m)
         measures = {}
+        outside = ~((q_arm >= lower) & (q_arm <= upper)).all(axis=1) & numeric.solved
         other_fits = np.zeros(n_samples, dtype=bool)
+        if outside.any():
+            other_fits[outside] = other_configuration_fits(
+                chain, targets[outside], q_arm[outside], lower, upper
+            )
         kind, kept = SolverKind.NUMERIC, None
 
     # axis-major storage: q[:, i] is contiguous, which the column-wise FK and checks read

@@ -1,0 +1,121 @@
+"""Branch rows for general (numeric) arms: the search for another configuration that fits."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from roboticstoolbox import DHRobot, RevoluteDH
+from spatialmath import SE3
+
+import reachgate
+from reachgate.checks import Check, Severity
+from reachgate.ik import chain_targets
+from reachgate.ik_closed import ALL_BRANCHES, SphericalWristSolver, is_spherical_wrist
+from reachgate.ik_configurations import fits_range, other_configuration_fits
+from reachgate.kinematics import forward
+from reachgate.robot import robot_from_dict
+from reachgate.transforms import matrix_to_quat
+
+from conftest import DEMO_ROBOT
+
+
+def _joint(name, a, alpha, d, offset=0.0, lo=-180.0, hi=180.0, home=0.0):
+    limits = dict(range_deg=[lo, hi], vmax_deg_s=150.0, amax_deg_s2=500.0, home_deg=home)
+    return dict(name=name, a_m=a, alpha_deg=alpha, d_m=d, offset_deg=offset, **limits)
+
+
+def offset_wrist_arm(j1_deg: float = 170.0, j4_deg: float = 350.0) -> reachgate.Robot:
+    """An invented arm whose wrist axes do not meet (a4 = 0.04 m, d5 = 0.06 m): numeric IK."""
+    joints = [
+        _joint("j1", 0.30, -90.0, 0.68, lo=-j1_deg, hi=j1_deg),
+        _joint("j2", 1.05, 0.0, 0.0, offset=-90.0, lo=-140, hi=20, home=-40),
+        _joint("j3", 0.20, -90.0, 0.0, lo=-120, hi=160, home=40),
+        _joint("j4", 0.04, 90.0, 1.10, lo=-j4_deg, hi=j4_deg),
+        _joint("j5", 0.0, -90.0, 0.06, lo=-125, hi=125, home=60),
+        _joint("j6", 0.0, 0.0, 0.22, lo=-360, hi=360),
+    ]
+    data = dict(name="offset wrist", convention="standard", joints=joints)
+    return robot_from_dict(data, source="test")
+
+
+def joint_ramp(robot, joint: int, end_deg: float, duration_s: float = 4.0):
+    """Home, then one joint ramped to end_deg (minimum-jerk), as a TCP path; also q (N, n)."""
+    t = np.arange(0.0, duration_s, 0.004)
+    s = t / t[-1]
+    q = np.tile(robot.home, (t.size, 1))
+    q[:, joint] += np.radians(end_deg) * (10 * s**3 - 15 * s**4 + 6 * s**5)
+    T = forward(robot, q)
+    return reachgate.Trajectory.from_arrays(t, T[:, :3, 3], matrix_to_quat(T[:, :3, :3])), q
+
+
+def test_flipped_wrist_fits_where_joint_4_winds_past_its_range():
+    """Joint 4 wound to 200° on a ±190° range: the path fails on j4's position, and the search
+    reports that another configuration fits at the samples beyond 190°. Outside check:
+    roboticstoolbox's ik_LM, seeded with the wrist flipped (θ4 - π, -θ5, θ6 + π), finds a
+    solution of the last pose inside every range."""
+    robot = offset_wrist_arm(j4_deg=190.0)
+    assert not is_spherical_wrist(robot.chain)
+    path, q = joint_ramp(robot, 3, 200.0)
+    report = reachgate.check(robot, path)
+    beyond = q[:, 3] > robot.upper[3]
+    assert report.solution.solver.name == "NUMERIC"
+    assert np.array_equal(report.solution.other_branch_fits, beyond)
+    rows = [r for r in report.violations if r.severity is Severity.VIOLATION]
+    branch = [r for r in rows if r.check is Check.BRANCH]
+    position = [r for r in rows if r.check is Check.POSITION and r.axis == "j4"]
+    assert len(branch) == 1 and len(position) == 1
+    assert branch[0].start_s == position[0].start_s == path.t_s[beyond][0]
+
+    chain = robot.chain
+    links = [
+        RevoluteDH(a=a, alpha=al, d=d, offset=th)
+        for a, al, d, th in zip(
+            chain.a_m, chain.alpha_rad, chain.d_m, chain.theta_offset_rad, strict=True
+        )
+    ]
+    target = chain_targets(robot, forward(robot, q[-1:]), None)[0]
+    flipped = q[-1] + np.array([0.0, 0.0, 0.0, -math.pi, 0.0, math.pi])
+    flipped[4] = -q[-1, 4]
+    found = DHRobot(links).ik_LM(SE3(target, check=False), q0=flipped, tol=1e-14)
+    assert found.success
+    assert fits_range(found.q[None], robot.lower, robot.upper)[0]
+
+
+def test_no_branch_row_where_every_configuration_leaves_the_range_of_joint_1():
+    """Joint 1 turned to 40° on a ±30° range: every other configuration of this arm either
+    keeps θ1 or turns it by about 180°, so none fits and there is no branch row (analytic
+    for the shoulder flip; the search must not invent one)."""
+    robot = offset_wrist_arm(j1_deg=30.0)
+    path, q = joint_ramp(robot, 0, 40.0)
+    report = reachgate.check(robot, path)
+    assert (q[:, 0] > robot.upper[0]).any()
+    assert not report.solution.other_branch_fits.any()
+    checks = {r.check for r in report.violations if r.severity is Severity.VIOLATION}
+    assert Check.POSITION in checks and Check.BRANCH not in checks
+
+
+def test_search_agrees_with_the_closed_form_branches_on_a_spherical_wrist_arm():
+    """On the demo arm (spherical wrist), the numeric search and the closed form's list of
+    branches answer 'does another configuration fit?' alike on random reachable poses with
+    narrowed ranges."""
+    robot = reachgate.load_robot(DEMO_ROBOT)  # its rail held at home
+    chain = robot.chain
+    rng = np.random.default_rng(4411)
+    m = 300
+    q_arm = rng.uniform(robot.lower[1:], robot.upper[1:], (m, chain.n))
+    rail = np.full(m, robot.rail.home)
+    T = forward(robot, np.column_stack([rail, q_arm]))
+    targets = chain_targets(robot, T, rail)
+    lower, upper = robot.lower[1:] * 0.5, robot.upper[1:] * 0.5  # many poses now outside
+    solver = SphericalWristSolver(chain)
+    closed_fits = np.zeros(m, dtype=bool)
+    own = [solver.branch_of(theta) for theta in q_arm + chain.theta_offset_rad]
+    for branch in ALL_BRANCHES:
+        sol = solver.solve(targets, branch)
+        fits = fits_range(sol.theta - chain.theta_offset_rad, lower, upper)
+        other = np.array([b != branch for b in own])
+        closed_fits |= fits & other & (sol.reach_excess_m == 0)
+    searched = other_configuration_fits(chain, targets, q_arm, lower, upper)
+    assert closed_fits.sum() > 20  # the case is not empty
+    np.testing.assert_array_equal(searched, closed_fits)
