@@ -10,6 +10,7 @@ import numpy as np
 import pytest
 from scipy.spatial.transform import Rotation
 
+import reachgate.trajectory as trajectory_module
 from reachgate.errors import ReachgateError
 from reachgate.trajectory import (
     WRITTEN_COLUMNS,
@@ -180,6 +181,27 @@ def test_line_scan_and_fast_path_give_identical_values(tmp_path):
     a, b = load_trajectory(fast), load_trajectory(slow)
     for field in ("t_s", "scenario_p_m", "scenario_q_wxyz"):
         np.testing.assert_array_equal(getattr(a, field), getattr(b, field))
+
+
+def test_text_labels_in_a_kept_out_column_still_take_the_fast_path_with_every_field_counted(
+    tmp_path, monkeypatch
+):
+    header = HEADER + ",phase"
+    good = [f"{0.01 * k:g},0.1,0.2,0.3,1,0,0,0,{'descent' if k < 3 else 'flare'}" for k in range(6)]
+    path = csv(tmp_path, [header, *good])
+    scanned = []
+    original = trajectory_module._scan_values
+    monkeypatch.setattr(
+        trajectory_module, "_scan_values", lambda *a: scanned.append(a) or original(*a)
+    )
+    loaded = load_trajectory(path)
+    assert not scanned  # one loadtxt call read the file
+    assert loaded.ignored_columns == ("phase",)
+    np.testing.assert_array_equal(loaded.t_s, 0.01 * np.arange(6))
+    # a row that lost its y_m field is still refused, at its line (field counts stand)
+    short = csv(tmp_path, [header, *good[:3], "0.03,0.1,0.3,1,0,0,0,flare", *good[4:]], "short.csv")
+    message = load_error(short)
+    assert message.startswith(f"{short} line 5:") and "short row" in message, message
 
 
 def test_uneven_time_steps_are_kept_as_given(tmp_path):

@@ -361,8 +361,11 @@ def _fast_values(path: Path, header_line: int, columns: _Columns) -> np.ndarray 
     """The used columns as (N, 7 or 8) floats from one np.loadtxt call, or None if it fails.
 
     comments=None: a comment line inside the data block makes loadtxt fail (too few fields),
-    so such files go to the line-by-line scan, which knows where comments may start.
+    so such files go to the line-by-line scan, which knows where comments may start. Columns
+    kept out of the check go through a converter that ignores their text (they may hold
+    labels), while loadtxt still counts every field of every line.
     """
+    unused = set(range(len(columns.names))) - set(columns.use)
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")  # "input contained no data": the scan says it better
@@ -373,6 +376,7 @@ def _fast_values(path: Path, header_line: int, columns: _Columns) -> np.ndarray 
                 skiprows=header_line,
                 ndmin=2,
                 encoding="utf-8",
+                converters=dict.fromkeys(unused, _ignored_field),
             )
     except ValueError:  # includes UnicodeDecodeError
         return None
@@ -381,6 +385,10 @@ def _fast_values(path: Path, header_line: int, columns: _Columns) -> np.ndarray 
     if columns.use == tuple(range(block.shape[1])):
         return block  # the usual file: no column to drop, no copy
     return block[:, columns.use]
+
+
+def _ignored_field(text: str) -> float:
+    return 0.0
 
 
 def _parse_number(text: str) -> float | None:
