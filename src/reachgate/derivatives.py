@@ -7,8 +7,9 @@ ends the window is one-sided (it slides to stay inside the data).
 
 The fit depends on the times alone, so for every sample one weight row per derivative order
 is computed once from t, (N, window), and applied to all k signal columns. Each window's times
-are mapped onto [-1, 1] and fitted in the Legendre basis, which keeps the small normal
-equations well conditioned (see derivative_weights). Work goes in blocks of CHUNK_SAMPLES
+are mapped onto [-1, 1] and fitted with the polynomials orthogonal on its own nodes, which
+needs no system solve and stays well conditioned (see derivative_weights). Work goes in
+blocks of CHUNK_SAMPLES
 samples, spread over THREADS threads; the result does not depend on either. Evenly spaced
 samples share one set of weights and go in one pass of compiled convolutions.
 """
@@ -65,23 +66,13 @@ def _window_starts(index: np.ndarray, n: int, window: int) -> np.ndarray:
     return np.clip(index - window // 2, 0, n - window)
 
 
-def _legendre_with_derivatives(u: np.ndarray, degree: int, orders: int) -> np.ndarray:
-    """Legendre polynomials P_0..P_degree and their first `orders` derivatives at u.
-
-    u: any shape S. Returns (orders + 1, degree + 1, *S); [r, m] = d^r P_m / du^r (u).
-    Recurrence: m P_m = (2m - 1) u P_{m-1} - (m - 1) P_{m-2}, differentiated r times.
-    """
-    p = np.zeros((orders + 1, degree + 1, *u.shape))
-    p[0, 0] = 1.0
-    if degree >= 1:
-        p[0, 1] = u
-        if orders >= 1:
-            p[1, 1] = 1.0
-    for m in range(2, degree + 1):
-        for r in range(orders + 1):
-            rising = u * p[r, m - 1] + (r * p[r - 1, m - 1] if r else 0.0)
-            p[r, m] = ((2 * m - 1) * rising - (m - 1) * p[r, m - 2]) / m
-    return p
+def _column_dot(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """sum_j a[j] * b[j] over the window axis, (w, c) -> (c,), summed in node order (so the
+    result does not depend on how many samples share the call)."""
+    total = a[0] * b[0]
+    for j in range(1, a.shape[0]):
+        total += a[j] * b[j]
+    return total
 
 
 def derivative_weights(
@@ -96,11 +87,15 @@ def derivative_weights(
     step is a plain vector operation over the c samples.
 
     Each window's times are mapped onto u in [-1, 1] (centred on the window, divided by half
-    its span) and the fit uses the Legendre basis P_0..P_degree(u). On such near-even grids
-    that basis is nearly orthogonal: the normal equations have condition number <= 12 for
-    even steps and ±20 % jitter (measured, 7 samples, degree 4), so an LDLᵀ solve loses no
-    accuracy. Monomials in time centred on the sample and divided by the mean step give
-    about 1e4 inside the path and 3e7 for the one-sided end windows.
+    its span), and the fit is built from the polynomials orthogonal on the window's own
+    nodes (Forsythe's three-term recurrence, "Generation and use of orthogonal polynomials
+    for data-fitting with a digital computer", 1957): q_0 = 1,
+    q_(m+1) = (u - α_m) q_m - β_m q_(m-1), α_m = <u q_m, q_m> / <q_m, q_m>,
+    β_m = <q_m, q_m> / <q_(m-1), q_(m-1)>. The least-squares fit is then
+    sum_m <x, q_m> q_m / <q_m, q_m> with no system to solve, and its derivatives at the
+    sample follow from the recurrence differentiated. The recurrence on near-even nodes in
+    [-1, 1] is well conditioned; q_0 drops out of every derivative, which is why the weights
+    sum to zero and may act on x - x[i].
     """
     n = t_s.shape[0]
     c = index.shape[0]
@@ -109,35 +104,36 @@ def derivative_weights(
     mid_s = 0.5 * (t_window[-1] + t_window[0])
     half_span_s = 0.5 * (t_window[-1] - t_window[0])
     u = (t_window - mid_s) / half_span_s  # (w, c) in [-1, 1]
-    basis = _legendre_with_derivatives(u, degree, 0)[0]  # (d+1, w, c)
-    at_sample = _legendre_with_derivatives((t_s[index] - mid_s) / half_span_s, degree, 3)
+    u_sample = (t_s[index] - mid_s) / half_span_s  # (c,)
+    orders = np.arange(len(_ORDERS) + 1, dtype=float)[1:, None]  # r = 1, 2, 3
 
-    p = degree + 1
-    gram = np.einsum("lwc,mwc->lmc", basis, basis)  # (p, p, c)
-
-    # LDLᵀ factorisation, vectorised over samples: gram = L diag(dia) Lᵀ, L unit lower.
-    low = np.zeros((p, p, c))
-    dia = np.empty((p, c))
-    for j in range(p):
-        dia[j] = gram[j, j] - np.einsum("kc,kc->c", low[j, :j] ** 2, dia[:j])
-        for i in range(j + 1, p):
-            acc = np.einsum("kc,kc,kc->c", low[i, :j], low[j, :j], dia[:j])
-            low[i, j] = (gram[i, j] - acc) / dia[j]
-
-    # Solve gram · z = d^r P(u_sample) for r = 1, 2, 3 at once: z (p, 3, c).
-    z = at_sample[1:].transpose(1, 0, 2).copy()
-    for i in range(p):
-        for k in range(i):
-            z[i] -= low[i, k] * z[k]
-    z /= dia[:, None, :]
-    for i in range(p - 1, -1, -1):
-        for k in range(i + 1, p):
-            z[i] -= low[k, i] * z[k]
-
-    # Weight rows: d^r fit / dt^r at the sample = sum_j (sum_m z[m, r] P_m(u_j)) x_j / half^r.
-    weights = np.einsum("mrc,mwc->rwc", z, basis)
-    for r in range(len(_ORDERS)):
-        weights[r] /= half_span_s ** _ORDERS[r]
+    nodes = np.empty((degree, window, c))  # q_1 .. q_degree at the nodes
+    scaled = np.empty((len(_ORDERS), degree, c))  # q_m^(r)(u_sample) / <q_m, q_m>, r = 1-3
+    # q_0 = 1 (its derivatives zero); α_0 is the nodes' mean, so q_1 = u - mean(u)
+    mean_u = u.mean(axis=0)
+    q_prev, q = 1.0, u - mean_u
+    at_prev, at = np.zeros((4, c)), np.zeros((4, c))
+    at_prev[0], at[0], at[1] = 1.0, u_sample - mean_u, 1.0
+    norm_prev, norm = np.full(c, float(window)), _column_dot(q, q)
+    for m in range(degree):
+        nodes[m] = q
+        scaled[:, m] = at[1:] / norm
+        if m + 1 == degree:
+            break
+        alpha = _column_dot(u * q, q) / norm
+        beta = norm / norm_prev
+        q_next = (u - alpha) * q - beta * q_prev
+        at_next = (u_sample - alpha) * at - beta * at_prev
+        at_next[1:] += orders * at[:-1]  # d^r/du^r of u q_m adds r q_m^(r-1)
+        q_prev, q, at_prev, at = q, q_next, at, at_next
+        norm_prev, norm = norm, _column_dot(q, q)
+    # plain products (not einsum, not a float power): rounding independent of the block
+    weights = np.empty((len(_ORDERS), window, c))
+    for r, order in enumerate(_ORDERS):
+        scaled[r] /= half_span_s**order
+        np.multiply(nodes[0], scaled[r, 0], out=weights[r])
+        for m in range(1, degree):
+            weights[r] += nodes[m] * scaled[r, m]
     return starts, weights
 
 
