@@ -146,7 +146,7 @@ class SphericalWristSolver:
         """Frame 3's axes x, y, z (each three (N,) arrays) in the chain frame.
 
         With joints 2 and 3 parallel, R03 = Rz(θ1) Rx(α1) Rz(φ) Rx(β) where φ = θ2 + ε θ3 and
-        β = α2 + α3 (Rx(π) Rz(θ) = Rz(-θ) Rx(π)), written out: four trig calls, not six.
+        β = α2 + α3 (Rx(π) Rz(θ) = Rz(-θ) Rx(π)), written out: two angles, not three.
         """
         (c1, s1), (cp, sp) = cos_sin(theta1), cos_sin(phi)
         ca, sa, cb, sb = self._ca1, self._sa1, self._cb, self._sb
