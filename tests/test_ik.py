@@ -36,7 +36,7 @@ from reachgate.kinematics import cell_T_base, forward
 from reachgate.robot import robot_from_dict
 from reachgate.transforms import matrix_to_quat, quat_to_matrix, rpy_to_matrix, transform
 
-from conftest import DEMO_ROBOT
+from conftest import DEMO_ROBOT, offset_wrist_arm
 
 #: Round-trip tolerances of the closed form (brief: 1e-9 m / 1e-9 rad; rounding is ~1e-15).
 ROUND_TRIP_TOL_M = 1e-9
@@ -95,27 +95,6 @@ def modified_spherical_arm() -> reachgate.Robot:
             convention="modified",
             mount=dict(xyz_m=[0.2, -0.1, 0.3], rpy_deg=[0.0, 10.0, 30.0]),
             tool=dict(xyz_m=[0.02, 0.0, 0.15], rpy_deg=[90.0, 0.0, -15.0]),
-            joints=joints,
-        )
-    )
-
-
-def offset_wrist_arm() -> reachgate.Robot:
-    """The demo arm's geometry with its wrist axes no longer meeting: a4 = 0.04 m, d5 = 0.06 m."""
-    joints = [
-        _joint("j1", 0.30, -90.0, 0.68),
-        _joint("j2", 1.05, 0.0, 0.0, offset=-90.0, lo=-140, hi=20, home=-40),
-        _joint("j3", 0.20, -90.0, 0.0, lo=-120, hi=160, home=40),
-        _joint("j4", 0.04, 90.0, 1.10, lo=-350, hi=350),
-        _joint("j5", 0.0, -90.0, 0.06, lo=-125, hi=125, home=60),
-        _joint("j6", 0.0, 0.0, 0.22, lo=-360, hi=360),
-    ]
-    return robot_from_dict(
-        dict(
-            name="offset wrist",
-            convention="standard",
-            mount=dict(xyz_m=[0.0, 0.0, 0.45]),
-            tool=dict(xyz_m=[0.0, 0.0, 0.25], rpy_deg=[-180.0, -30.0, 0.0]),
             joints=joints,
         )
     )

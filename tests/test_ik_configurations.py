@@ -14,29 +14,9 @@ from reachgate.ik import chain_targets
 from reachgate.ik_closed import ALL_BRANCHES, SphericalWristSolver, is_spherical_wrist
 from reachgate.ik_configurations import fits_range, other_configuration_fits
 from reachgate.kinematics import forward
-from reachgate.robot import robot_from_dict
 from reachgate.transforms import matrix_to_quat
 
-from conftest import DEMO_ROBOT
-
-
-def _joint(name, a, alpha, d, offset=0.0, lo=-180.0, hi=180.0, home=0.0):
-    limits = dict(range_deg=[lo, hi], vmax_deg_s=150.0, amax_deg_s2=500.0, home_deg=home)
-    return dict(name=name, a_m=a, alpha_deg=alpha, d_m=d, offset_deg=offset, **limits)
-
-
-def offset_wrist_arm(j1_deg: float = 170.0, j4_deg: float = 350.0) -> reachgate.Robot:
-    """An invented arm whose wrist axes do not meet (a4 = 0.04 m, d5 = 0.06 m): numeric IK."""
-    joints = [
-        _joint("j1", 0.30, -90.0, 0.68, lo=-j1_deg, hi=j1_deg),
-        _joint("j2", 1.05, 0.0, 0.0, offset=-90.0, lo=-140, hi=20, home=-40),
-        _joint("j3", 0.20, -90.0, 0.0, lo=-120, hi=160, home=40),
-        _joint("j4", 0.04, 90.0, 1.10, lo=-j4_deg, hi=j4_deg),
-        _joint("j5", 0.0, -90.0, 0.06, lo=-125, hi=125, home=60),
-        _joint("j6", 0.0, 0.0, 0.22, lo=-360, hi=360),
-    ]
-    data = dict(name="offset wrist", convention="standard", joints=joints)
-    return robot_from_dict(data, source="test")
+from conftest import DEMO_ROBOT, offset_wrist_arm
 
 
 def joint_ramp(robot, joint: int, end_deg: float, duration_s: float = 4.0):

@@ -1,14 +1,17 @@
-"""Numeric path IK on fast rotations: no joint wound by a whole turn between coarse samples."""
+"""Numeric path IK: fast rotations wind no joint by a whole turn between coarse samples; the
+sequential pass's one-sample iteration is the batched one."""
 
 from __future__ import annotations
 
 import numpy as np
 
 import reachgate
+from reachgate.ik import chain_targets
+from reachgate.ik_numeric import MAX_ITERATIONS_SEQUENTIAL, _refine_single, refine
 from reachgate.kinematics import forward
 from reachgate.transforms import matrix_to_quat, rpy_to_matrix
 
-from conftest import REPO
+from conftest import REPO, offset_wrist_arm
 
 
 def test_fast_roll_on_the_gantry_follows_without_winding():
@@ -28,3 +31,21 @@ def test_fast_roll_on_the_gantry_follows_without_winding():
     np.testing.assert_allclose(np.ptp(q[:, -1]), np.ptp(roll), atol=1e-6)
     np.testing.assert_allclose(np.ptp(q[:, :-1], axis=0), 0.0, atol=1e-6)
     assert report.solution.position_error_m.max() < 1e-9
+
+
+def test_one_sample_iteration_equals_the_batched_one():
+    """The sequential pass's one-sample damped least squares (small arrays) is the batched
+    refine() step for step: the same solutions on a revolute and a prismatic-axis arm."""
+    rng = np.random.default_rng(4417)
+    for robot in (offset_wrist_arm(), reachgate.load_robot(REPO / "robots" / "demo_gantry.toml")):
+        q_true = robot.home + rng.uniform(-0.3, 0.3, (20, robot.n_axes))
+        q_true = np.clip(q_true, robot.lower, robot.upper)
+        targets = chain_targets(robot, forward(robot, q_true), None)
+        seeds = q_true + rng.uniform(-0.05, 0.05, q_true.shape)
+        batch_q, _ = refine(robot.chain, targets, seeds, MAX_ITERATIONS_SEQUENTIAL)
+        for k in range(len(seeds)):
+            one_q, one_error = _refine_single(
+                robot.chain, targets[k], seeds[k], MAX_ITERATIONS_SEQUENTIAL
+            )
+            assert np.linalg.norm(one_error) < 1e-12
+            np.testing.assert_allclose(one_q, batch_q[k], atol=1e-12)
