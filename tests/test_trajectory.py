@@ -22,6 +22,19 @@ from reachgate.trajectory import (
 from reachgate.transforms import UNIT_QUATERNION_TOL, matrix_to_quat, rpy_to_matrix
 
 HEADER = "t_s,x_m,y_m,z_m,qw,qx,qy,qz"
+
+
+@pytest.fixture(autouse=True, params=["loadtxt", "arrow"])
+def reader(request, monkeypatch):
+    """Every test here runs with each fast reader: np.loadtxt, and pyarrow's CSV reader
+    (which large files take); both must accept and refuse exactly what the scan does."""
+    if request.param == "loadtxt":
+        monkeypatch.setattr(trajectory_module, "_arrow_values", lambda *args: None)
+    else:
+        monkeypatch.setattr(trajectory_module, "ARROW_MIN_BYTES", 0)
+    return request.param
+
+
 ROW = "{t},0.1,0.2,0.3,1,0,0,0"
 
 
@@ -427,3 +440,17 @@ def test_from_arrays_with_rpy_matches_scipy():
         trajectory.scenario_q_wxyz,
         Rotation.from_euler("ZYX", rpy[:, ::-1]).as_quat(scalar_first=True),
     )
+
+
+def test_large_files_take_the_arrow_reader_with_the_same_values(tmp_path, monkeypatch, reader):
+    source = random_trajectory(31, n=2000)
+    path = tmp_path / "large.csv"
+    write_trajectory(path, source)
+    expected = load_trajectory(path)
+    if reader == "arrow":  # with np.loadtxt and the scan out of the way, arrow alone reads it
+        monkeypatch.setattr(trajectory_module.np, "loadtxt", None)
+        monkeypatch.setattr(trajectory_module, "_scan_values", None)
+    loaded = load_trajectory(path)
+    for field in ("t_s", "scenario_p_m", "scenario_q_wxyz"):
+        np.testing.assert_array_equal(getattr(loaded, field), getattr(expected, field))
+        np.testing.assert_array_equal(getattr(loaded, field), getattr(source, field))

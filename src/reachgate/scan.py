@@ -42,7 +42,7 @@ from reachgate.store import (
     batch_counts,
     load_summary,
 )
-from reachgate.trajectory import load_trajectory
+from reachgate.trajectory import import_fast_reader, load_trajectory
 
 __all__ = [
     "DEFAULT_STORE_NAME",
@@ -185,6 +185,7 @@ def check_case(case_path: str, settings: CheckSettings, robot_raw: bytes, robot_
     out: dict = {"case_path": case_path, "case_sha256": None, "verdict": "error"}
     out.update(error=None, report=None, excess_fractions=None)
     try:
+        import_fast_reader()  # a worker reads many files: the faster reader repays its import
         out["case_sha256"] = file_sha256(case_path)
         robot = _robot_for(robot_raw, robot_label)
         report = check(robot, load_trajectory(case_path), settings)

@@ -2,15 +2,17 @@
 
 A trajectory gives TCP poses in the *scenario* frame at strictly increasing times.
 
-Loading takes a fast path (one ``np.loadtxt`` call over the numeric block) and, only when
-that path fails or the values break a rule, rescans the file line by line in Python to name
-the exact line and column at fault. The line-by-line scan is the authority: the fast path
-only ever accepts files that the scan would accept with the same values.
+Loading takes a fast path (one call of pyarrow's CSV reader for large files, where it is
+installed, else one ``np.loadtxt`` call over the numeric block) and, only when that path
+fails or the values break a rule, rescans the file line by line in Python to name the exact
+line and column at fault. The line-by-line scan is the authority: a fast path only ever
+accepts files that the scan would accept with the same values.
 """
 
 from __future__ import annotations
 
 import math
+import sys
 import warnings
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -28,6 +30,12 @@ RENORMALISE_ABOVE = 8 * np.finfo(float).eps
 
 #: Header of the files that write_trajectory produces.
 WRITTEN_COLUMNS = ("t_s", "x_m", "y_m", "z_m", "qw", "qx", "qy", "qz")
+
+#: Files of at least this many bytes go through pyarrow's CSV reader (one thread; about 2.6
+#: times faster than np.loadtxt on 1,000,000 rows, measured) when pyarrow is installed.
+#: Smaller files use it only once it is imported (as in a scan's workers): importing it
+#: costs about 0.1 s, more than it saves on a file of under about 100,000 rows.
+ARROW_MIN_BYTES = 16_000_000
 
 #: Rows formatted per block when writing: bounds the memory of the formatted text.
 _WRITE_BLOCK_ROWS = 100_000
@@ -357,6 +365,84 @@ def _read_header(path: Path, label: str) -> tuple[int, list[str]]:
     raise ReachgateError(f"{label}: no header line (the file holds only comments or blank lines)")
 
 
+def import_fast_reader() -> bool:
+    """Import pyarrow's CSV reader now, so that files of any size use it. -> available."""
+    try:
+        import pyarrow.csv  # noqa: F401
+    except ImportError:
+        return False
+    return True
+
+
+#: Bytes read at a time when screening a file for the arrow reader.
+_SCREEN_BLOCK_BYTES = 1 << 23
+
+
+def _screen(path: Path, header_line: int) -> tuple[int, int] | None:
+    """(byte offset of the data block, lines in it at most) if the whole file is plain ASCII
+    without NUL bytes, read in blocks; else None."""
+    start, lines, newlines = 0, 0, 0
+    with path.open("rb") as handle:
+        offset = 0
+        while block := handle.read(_SCREEN_BLOCK_BYTES):
+            if b"\x00" in block or not block.isascii():
+                return None
+            at = 0
+            while lines < header_line and (found := block.find(b"\n", at)) >= 0:
+                lines, at, start = lines + 1, found + 1, offset + found + 1
+            newlines += block.count(b"\n")
+            offset += len(block)
+    if lines < header_line:
+        return None
+    return start, newlines - header_line + 1  # + 1: a last line without a newline
+
+
+def _arrow_values(path: Path, header_line: int, columns: _Columns) -> np.ndarray | None:
+    """The used columns as (N, 7 or 8) floats from pyarrow's CSV reader, or None.
+
+    None (and so the next path) for anything unusual: pyarrow missing, bytes that are not
+    plain ASCII (the scan words those faults), a row with another number of fields, a value
+    that is no plain number, an empty or 'nan' field (pyarrow reads those as null). Reads
+    batch by batch into one preallocated array, so memory stays near the result's size.
+    """
+    if not import_fast_reader():
+        return None
+    import pyarrow as pa
+    import pyarrow.csv as arrow_csv
+
+    screened = _screen(path, header_line)
+    if screened is None:
+        return None
+    start, most_rows = screened
+    names = [f"c{i}" for i in range(len(columns.names))]  # header names may be anything
+    used = [names[i] for i in columns.use]
+    values = np.empty((most_rows, len(used)))
+    rows = 0
+    try:
+        with pa.OSFile(str(path)) as source:
+            source.seek(start)
+            batches = arrow_csv.open_csv(
+                source,
+                read_options=arrow_csv.ReadOptions(column_names=names, use_threads=False),
+                parse_options=arrow_csv.ParseOptions(quote_char=False, ignore_empty_lines=True),
+                convert_options=arrow_csv.ConvertOptions(
+                    include_columns=used, column_types=dict.fromkeys(used, pa.float64())
+                ),
+            )
+            for batch in batches:
+                if rows + batch.num_rows > most_rows:
+                    return None
+                for k, name in enumerate(used):
+                    column = batch.column(name)
+                    if column.null_count:
+                        return None
+                    values[rows : rows + batch.num_rows, k] = column.to_numpy()
+                rows += batch.num_rows
+    except (pa.ArrowInvalid, pa.ArrowNotImplementedError, OSError):
+        return None
+    return values[:rows] if rows >= 2 else None
+
+
 def _fast_values(path: Path, header_line: int, columns: _Columns) -> np.ndarray | None:
     """The used columns as (N, 7 or 8) floats from one np.loadtxt call, or None if it fails.
 
@@ -365,6 +451,10 @@ def _fast_values(path: Path, header_line: int, columns: _Columns) -> np.ndarray 
     kept out of the check go through a converter that ignores their text (they may hold
     labels), while loadtxt still counts every field of every line.
     """
+    if "pyarrow.csv" in sys.modules or path.stat().st_size >= ARROW_MIN_BYTES:
+        values = _arrow_values(path, header_line, columns)
+        if values is not None:
+            return values
     unused = set(range(len(columns.names))) - set(columns.use)
     try:
         with warnings.catch_warnings():
