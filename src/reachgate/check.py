@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import json
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from enum import Enum
 
 import numpy as np
@@ -36,6 +36,12 @@ from reachgate.transforms import transform_from_xyz_rpy
 DEFAULT_LAG_TOL_M = 0.001
 #: A singularity measure below this multiple of its floor gives a `near` row.
 SINGULARITY_NEAR_FACTOR = 2.0
+#: The slow-down factor is raised by this relative margin, so that the stretched case's worst
+#: rate lands below its limit instead of on it (floating point).
+SLOWDOWN_MARGIN = 1e-6
+#: With --rail follow a stretch also changes what the rail filter passes, so the factor is
+#: checked on the stretched case and raised until its rate rows clear, at most this often.
+SLOWDOWN_VERIFY_ROUNDS = 8
 #: Samples per block of the rate checks (bounds the (block, n_axes) derivative arrays).
 RATE_BLOCK_SAMPLES = 65_536
 #: Extra samples on each side of a block, so every local fit sees the same neighbours as in
@@ -161,6 +167,41 @@ def _untrusted(mask: np.ndarray) -> np.ndarray:
 def check(robot: Robot, trajectory: Trajectory, settings: CheckSettings | None = None) -> Report:
     """Check whether the robot can follow every sample of the trajectory. -> Report."""
     settings = settings or CheckSettings()
+    report = _check_once(robot, trajectory, settings)
+    if settings.rail is RailPolicy.FOLLOW and report.slowdown not in (None, 1.0):
+        report = replace(report, slowdown=_verified_slowdown(robot, trajectory, settings, report))
+    return report
+
+
+def stretched(trajectory: Trajectory, factor: float) -> Trajectory:
+    """The same poses with every time step `factor` times longer (from the first sample)."""
+    t0 = trajectory.t_s[0]
+    return replace(trajectory, t_s=t0 + (trajectory.t_s - t0) * factor)
+
+
+def _rate_ratio(report: Report) -> float:
+    """The stretch that the report's worst speed, accel and jerk still ask for (<= 1: none)."""
+    needed = 0.0
+    for margins in report.margins.values():
+        for kind, power in ((Check.SPEED, 1.0), (Check.ACCEL, 2.0), (Check.JERK, 3.0)):
+            if kind.value in margins:
+                needed = max(needed, max(1.0 - margins[kind.value], 0.0) ** (1.0 / power))
+    return needed
+
+
+def _verified_slowdown(robot, trajectory, settings, report: Report) -> float | None:
+    """The slow-down factor checked on the stretched case (rail follow), or None if rounds
+    of raising it never cleared the rate rows."""
+    factor = report.slowdown
+    for _ in range(SLOWDOWN_VERIFY_ROUNDS):
+        ratio = _rate_ratio(_check_once(robot, stretched(trajectory, factor), settings))
+        if ratio <= 1.0:
+            return factor
+        factor *= ratio * (1.0 + SLOWDOWN_MARGIN)
+    return None
+
+
+def _check_once(robot: Robot, trajectory: Trajectory, settings: CheckSettings) -> Report:
     t = trajectory.t_s
     cell_T_scenario = settings.placement.cell_T_scenario()
     cell_p_tcp = trajectory.scenario_p_m @ cell_T_scenario[:3, :3].T + cell_T_scenario[:3, 3]
@@ -357,9 +398,9 @@ def _slowdown(failing: list[Violation], worst_ratio: dict[Check, float]) -> floa
         return 1.0
     if not any(r.check in RATE_CHECKS for r in failing):
         return None
-    return max(
-        1.0,
+    needed = max(
         worst_ratio[Check.SPEED],
         math.sqrt(worst_ratio[Check.ACCEL]),
         math.cbrt(worst_ratio[Check.JERK]),
     )
+    return max(1.0, needed * (1.0 + SLOWDOWN_MARGIN))
