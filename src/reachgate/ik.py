@@ -282,28 +282,31 @@ def _solve_rows(
         q_arm = continuous_angles(sol.theta - chain.theta_offset_rad, previous)
         reach = sol.reach_excess_m
         measures = {"shoulder": sol.shoulder_m, "elbow": sol.elbow_rad, "wrist": sol.wrist_rad}
-        outside = ~((q_arm >= lower) & (q_arm <= upper)).all(axis=1) & (reach == 0)
-        other_fits = np.zeros(n_samples, dtype=bool)
-        if outside.any():
-            for other in ALL_BRANCHES:
-                if other == branch:
-                    continue
-                alt = solver.solve_rows(rows[:, outside], other).theta - chain.theta_offset_rad
-                other_fits[outside] |= fits_range(alt, lower, upper)
         kind, kept = SolverKind.CLOSED_FORM, branch
+
+        def another_fits(outside: np.ndarray) -> np.ndarray:
+            fits = np.zeros(int(outside.sum()), dtype=bool)
+            for other in ALL_BRANCHES:
+                if other != branch:
+                    alt = solver.solve_rows(rows[:, outside], other).theta
+                    fits |= fits_range(alt - chain.theta_offset_rad, lower, upper)
+            return fits
     else:
         targets = rows_to_matrices(rows)
         numeric = solve_path_numeric(chain, targets, previous)
         q_arm = numeric.q_arm
         reach = np.where(numeric.solved, 0.0, numeric.position_error_m)
         measures = {}
-        outside = ~((q_arm >= lower) & (q_arm <= upper)).all(axis=1) & numeric.solved
-        other_fits = np.zeros(n_samples, dtype=bool)
-        if outside.any():
-            other_fits[outside] = other_configuration_fits(
-                chain, targets[outside], q_arm[outside], lower, upper
-            )
         kind, kept = SolverKind.NUMERIC, None
+
+        def another_fits(outside: np.ndarray) -> np.ndarray:
+            return other_configuration_fits(chain, targets[outside], q_arm[outside], lower, upper)
+
+    # where the kept solution leaves a range: does another configuration stay inside them all?
+    outside = ~((q_arm >= lower) & (q_arm <= upper)).all(axis=1) & (reach == 0)
+    other_fits = np.zeros(n_samples, dtype=bool)
+    if outside.any():
+        other_fits[outside] = another_fits(outside)
 
     # axis-major storage: q[:, i] is contiguous, which the column-wise FK and checks read
     q_rows = np.empty((robot.n_axes, n_samples))
