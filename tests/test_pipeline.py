@@ -147,3 +147,24 @@ def test_arm_manipulability_in_blocks_equals_one_jacobian_pass(robot, monkeypatc
     whole = kinematics.manipulability(kinematics.jacobian(robot, q)[:, :, 1:])
     monkeypatch.setattr(kinematics, "MANIPULABILITY_BLOCK_SAMPLES", 97)
     np.testing.assert_array_equal(kinematics.arm_manipulability(robot, q), whole)
+
+
+def test_lag_rows_are_the_delayed_position_error_in_the_cell_whatever_the_placement(robot):
+    """Analytic: the lag error |p(t) - p(t - lag)| is a distance between two TCP positions, so
+    a rigid placement of the scenario leaves it unchanged; it is checked here against the
+    error computed from the placed cell positions by hand (np.interp on each cell axis)."""
+    path = reachgate.load_trajectory(DEMO_CASES / "approach_gusty.csv")
+    placement = reachgate.Placement(xyz_m=(0.3, -0.2, 0.1), rpy_rad=(0.05, -0.1, 0.8))
+    settings = reachgate.CheckSettings(placement=placement, lag_s=0.02, lag_tol_m=0.004)
+    report = reachgate.check(robot, path, settings)
+    T = placement.cell_T_scenario()
+    cell_p = path.scenario_p_m @ T[:3, :3].T + T[:3, 3]
+    t = path.t_s
+    delayed = np.column_stack([np.interp(t - 0.02, t, cell_p[:, k]) for k in range(3)])
+    error_m = np.linalg.norm(cell_p - delayed, axis=1)
+    lag = [v for v in report.violations if v.check is reachgate.Check.LAG]
+    over = error_m > 0.004
+    assert over.any() and lag  # the case is not empty
+    worst = [v for v in lag if v.severity is reachgate.Severity.VIOLATION]
+    assert max(v.worst for v in worst) == pytest.approx(error_m.max(), rel=1e-12)
+    assert min(v.start_s for v in worst) == pytest.approx(t[over][0])

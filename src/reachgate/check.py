@@ -204,9 +204,14 @@ def _verified_slowdown(robot, trajectory, settings, report: Report) -> float | N
 def _check_once(robot: Robot, trajectory: Trajectory, settings: CheckSettings) -> Report:
     t = trajectory.t_s
     cell_T_scenario = settings.placement.cell_T_scenario()
-    cell_p_tcp = trajectory.scenario_p_m @ cell_T_scenario[:3, :3].T + cell_T_scenario[:3, 3]
     rail_m = rail_positions(
-        robot, t, cell_p_tcp, settings.rail, settings.rail_at_m, settings.rail_bandwidth_hz
+        robot,
+        t,
+        trajectory.scenario_p_m,
+        cell_T_scenario,
+        settings.rail,
+        settings.rail_at_m,
+        settings.rail_bandwidth_hz,
     )
     solution = solve_trajectory(robot, trajectory, cell_T_scenario, rail_m)
     q = solution.q
@@ -260,13 +265,9 @@ def _check_once(robot: Robot, trajectory: Trajectory, settings: CheckSettings) -
             unit="rad",
         )
     if settings.lag_s is not None:
-        delayed_t = t - settings.lag_s
-        error_m = np.sqrt(
-            sum(
-                (cell_p_tcp[:, k] - np.interp(delayed_t, t, cell_p_tcp[:, k])) ** 2
-                for k in range(3)
-            )
-        )
+        # |p(t) - p(t - lag)| is the same in the scenario frame as in the cell (rigid placement)
+        delayed_t, p = t - settings.lag_s, trajectory.scenario_p_m
+        error_m = np.sqrt(sum((p[:, k] - np.interp(delayed_t, t, p[:, k])) ** 2 for k in range(3)))
         rows += intervals(
             t,
             error_m - settings.lag_tol_m,

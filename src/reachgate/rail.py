@@ -71,12 +71,14 @@ def follow_filter(t_s: np.ndarray, u: np.ndarray, bandwidth_hz: float) -> np.nda
 def rail_positions(
     robot: Robot,
     t_s: np.ndarray,
-    cell_p_tcp: np.ndarray,
+    scenario_p_tcp: np.ndarray,
+    cell_T_scenario: np.ndarray,
     policy: RailPolicy,
     rail_at_m: float | None = None,
     bandwidth_hz: float = DEFAULT_BANDWIDTH_HZ,
 ) -> np.ndarray | None:
-    """Rail carriage positions (N,) in m for TCP positions (N, 3) in the cell, or None.
+    """Rail carriage positions (N,) in m for TCP positions (N, 3) in the scenario frame,
+    placed in the cell by cell_T_scenario (4, 4), or None.
 
     fixed: every sample at rail_at_m (default the rail's home). follow: the TCP's coordinate
     along the rail axis, low-pass filtered, minus the TCP's along-rail offset from the carriage
@@ -88,7 +90,7 @@ def rail_positions(
             raise ReachgateError(f"{robot.source}: robot {robot.name!r} has no rail")
         return None
     rail = robot.rail
-    n = cell_p_tcp.shape[0]
+    n = scenario_p_tcp.shape[0]
     if policy is RailPolicy.FIXED:
         at = rail.home if rail_at_m is None else float(rail_at_m)
         if not rail.lower <= at <= rail.upper:
@@ -102,7 +104,9 @@ def rail_positions(
         )
     rail_axis = robot.cell_T_rail[:3, 0]
     rail_origin = robot.cell_T_rail[:3, 3]
-    along_m = (cell_p_tcp - rail_origin) @ rail_axis
+    # the TCP's coordinate along the rail, (cell_p - origin) · axis, as one (N, 3) @ (3,)
+    placed_axis = cell_T_scenario[:3, :3].T @ rail_axis
+    along_m = scenario_p_tcp @ placed_axis + (cell_T_scenario[:3, 3] - rail_origin) @ rail_axis
     home_tcp = forward(robot, robot.home[None])[0, :3, 3]
     offset_m = (home_tcp - rail_origin) @ rail_axis - rail.home
     return np.clip(follow_filter(t_s, along_m - offset_m, bandwidth_hz), rail.lower, rail.upper)

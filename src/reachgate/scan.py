@@ -394,6 +394,7 @@ def _validate_settings(robot: Robot, settings: CheckSettings) -> None:
         robot,
         np.array([0.0, 1.0]),
         np.zeros((2, 3)),
+        np.eye(4),
         settings.rail,
         settings.rail_at_m,
         settings.rail_bandwidth_hz,
