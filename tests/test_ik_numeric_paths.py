@@ -49,3 +49,30 @@ def test_one_sample_iteration_equals_the_batched_one():
             )
             assert np.linalg.norm(one_error) < 1e-12
             np.testing.assert_allclose(one_q, batch_q[k], atol=1e-12)
+
+
+def test_a_solver_that_returns_nan_and_claims_success_cannot_make_a_pass(monkeypatch):
+    """The forward-kinematics check of every solution is the safety net: joint values that
+    are NaN (a solver gone astray) with zero reported error count as out of reach, so the
+    verdict is fail, never pass."""
+    import reachgate.ik as ik_module
+    from reachgate.ik_numeric import NumericSolution
+
+    robot = offset_wrist_arm()
+    t = np.linspace(0.0, 2.0, 201)
+    q = robot.home + np.radians(5.0) * np.sin(2 * np.pi * 0.5 * t)[:, None]
+    T = forward(robot, q)
+    path = reachgate.Trajectory.from_arrays(t, T[:, :3, 3], matrix_to_quat(T[:, :3, :3]))
+    assert reachgate.check(robot, path).verdict is reachgate.Verdict.PASS
+
+    def astray(chain, targets, q_home):
+        q_bad = np.tile(q_home, (targets.shape[0], 1))
+        q_bad[50:60] = np.nan
+        zeros = np.zeros(targets.shape[0])
+        return NumericSolution(q_arm=q_bad, position_error_m=zeros, orientation_error_rad=zeros)
+
+    monkeypatch.setattr(ik_module, "solve_path_numeric", astray)
+    report = reachgate.check(robot, path)
+    assert report.verdict is reachgate.Verdict.FAIL
+    assert (report.solution.reach_excess_m[50:60] > 0).all()
+    assert any(v.check is reachgate.Check.REACH for v in report.violations)

@@ -220,25 +220,29 @@ def _check_once(robot: Robot, trajectory: Trajectory, settings: CheckSettings) -
     thresholds = robot.thresholds
     rows, margins, worst_ratio = _rate_rows(robot, t, q, trusted)
 
+    any_unreachable = bool(unreachable.any())
     for i, axis in enumerate(robot.axes):
         qi = q[:, i]
-        mid = 0.5 * (axis.lower + axis.upper)
         excess = np.maximum(qi - axis.upper, axis.lower - qi)
-        band = thresholds.position_margin_rad if axis.is_revolute else thresholds.position_margin_m
-        rows += intervals(
-            t,
-            np.where(unreachable, -np.inf, excess),
-            band,
-            check=Check.POSITION,
-            axis=axis.name,
-            worst_value=qi,
-            limit_value=np.where(qi >= mid, axis.upper, axis.lower),
-            unit="rad" if axis.is_revolute else "m",
-        )
         # unreachable samples have no meaningful joint values; with none reachable, no margin
-        seen = excess[~unreachable]
+        if any_unreachable:
+            excess = np.where(unreachable, -np.inf, excess)
+        peak = float(excess.max())
+        band = thresholds.position_margin_rad if axis.is_revolute else thresholds.position_margin_m
+        if peak > -band:  # else no sample is over or near the range ends: no rows to look for
+            mid = 0.5 * (axis.lower + axis.upper)
+            rows += intervals(
+                t,
+                excess,
+                band,
+                check=Check.POSITION,
+                axis=axis.name,
+                worst_value=qi,
+                limit_value=np.where(qi >= mid, axis.upper, axis.lower),
+                unit="rad" if axis.is_revolute else "m",
+            )
         half_range = 0.5 * (axis.upper - axis.lower)
-        position = float(-np.max(seen) / half_range) if seen.size else float("nan")
+        position = -peak / half_range if math.isfinite(peak) else float("nan")
         margins[axis.name] = {"position": position, **margins[axis.name]}
 
     rows += _singularity_rows(robot, t, solution, trusted)

@@ -315,9 +315,11 @@ def _solve_rows(
         q_rows[0] = rail_m
     q = q_rows.T
     position_error, orientation_error = _residuals(robot, q[:, -chain.n :], rows)
-    missed = (position_error > RESIDUAL_TOL_M) | (orientation_error > RESIDUAL_TOL_RAD)
-    # An unsolved sample with no geometric excess still counts as out of reach, by its miss.
-    reach = np.where(missed & (reach == 0), np.maximum(position_error, 1e-12), reach)
+    # written so that a NaN residual (a solver gone astray) counts as missed, never as met
+    missed = ~((position_error <= RESIDUAL_TOL_M) & (orientation_error <= RESIDUAL_TOL_RAD))
+    # An unsolved sample with no geometric excess still counts as out of reach, by its miss
+    # (fmax: a NaN miss counts as the smallest one, not as none).
+    reach = np.where(missed & (reach == 0), np.fmax(position_error, 1e-12), reach)
     return PathSolution(
         q=q,
         solver=kind,
