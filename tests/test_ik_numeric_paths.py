@@ -76,3 +76,21 @@ def test_a_solver_that_returns_nan_and_claims_success_cannot_make_a_pass(monkeyp
     assert report.verdict is reachgate.Verdict.FAIL
     assert (report.solution.reach_excess_m[50:60] > 0).all()
     assert any(v.check is reachgate.Check.REACH for v in report.violations)
+
+
+def test_seeds_between_solved_samples_are_exact_for_cubic_joint_motion():
+    """Analytic: cubic Lagrange interpolation through two solved samples on each side gives a
+    cubic exactly; where a side has one solved sample only, the seed is the linear one."""
+    from reachgate.ik_numeric import _interpolated_seeds
+
+    index = np.arange(40)
+    q = np.column_stack([0.3 + 0.01 * index - 2e-4 * index**2 + 3e-6 * index**3, 0.5 * index])
+    known = np.array([0, 3, 9, 14, 22, 31, 39])  # unevenly spread solved samples
+    todo = np.setdiff1d(index, known)
+    right = np.searchsorted(known, todo)
+    seeds = _interpolated_seeds(q, known, right, todo)
+    inner = (right >= 2) & (right + 1 <= known.size - 1)
+    np.testing.assert_allclose(seeds[inner], q[todo[inner]], atol=1e-12)
+    left, after = known[right[~inner] - 1], known[right[~inner]]
+    w = ((todo[~inner] - left) / (after - left))[:, None]
+    np.testing.assert_allclose(seeds[~inner], (1 - w) * q[left] + w * q[after], atol=1e-12)

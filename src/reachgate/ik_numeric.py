@@ -162,6 +162,37 @@ def coarse_samples(chain_T_target: np.ndarray) -> np.ndarray:
     return np.unique(np.concatenate([grid, fast, [n_samples - 1]]))
 
 
+def _interpolated_seeds(
+    q: np.ndarray, known: np.ndarray, right: np.ndarray, todo: np.ndarray
+) -> np.ndarray:
+    """Seeds (M, n) for the samples `todo` (M,) from the solved samples `known` (K,) around
+    them (right: position in known of each one's right neighbour): cubic Lagrange
+    interpolation through two solved samples on each side, linear where one side has fewer.
+
+    A cubic seed is off by O(h⁴) instead of O(h²), which saves a damped least-squares step
+    on the coarser levels.
+    """
+    k = known.size
+    right_c = np.minimum(right, k - 1)
+    left_i, right_i = known[right - 1], known[right_c]
+    span = np.maximum(right_i - left_i, 1)
+    weight = ((todo - left_i) / span)[:, None]
+    seed = (1 - weight) * q[left_i] + weight * q[right_i]
+    cubic = (right >= 2) & (right + 1 <= k - 1)
+    if cubic.any():
+        nodes = known[right[cubic, None] + np.arange(-2, 2)]  # (m, 4) sample indices
+        x = todo[cubic].astype(float)
+        values = np.zeros((nodes.shape[0], q.shape[1]))
+        for j in range(4):
+            basis = np.ones(nodes.shape[0])
+            for m in range(4):
+                if m != j:
+                    basis *= (x - nodes[:, m]) / (nodes[:, j] - nodes[:, m])
+            values += basis[:, None] * q[nodes[:, j]]
+        seed[cubic] = values
+    return seed
+
+
 def solve_path_numeric(
     chain: Chain, chain_T_target: np.ndarray, q_home: np.ndarray
 ) -> NumericSolution:
@@ -190,10 +221,8 @@ def solve_path_numeric(
         if todo.size:
             known = np.flatnonzero(solved)
             right = np.searchsorted(known, todo)
-            left_i, right_i = known[right - 1], known[np.minimum(right, known.size - 1)]
-            span = np.maximum(right_i - left_i, 1)
-            weight = ((todo - left_i) / span)[:, None]
-            seed = (1 - weight) * q[left_i] + weight * q[right_i]
+            left_i = known[right - 1]
+            seed = _interpolated_seeds(q, known, right, todo)
             q[todo], error[todo] = refine(chain, chain_T_target[todo], seed, MAX_ITERATIONS_BATCH)
             solved[todo] = True
             # Samples the batch could not finish get a sequential retry from their left neighbour.
