@@ -52,7 +52,9 @@ def write_case(name: str, description: str, t, p, rpy, *, extra=None) -> None:
         columns.append(extra)
     path = OUT / name
     with open(path, "w", encoding="utf-8", newline="\n") as handle:
-        handle.write("# reachgate demo case (invented): drone mock-up landing on a moving roof pad\n")
+        handle.write(
+            "# reachgate demo case (invented): drone mock-up landing on a moving roof pad\n"
+        )
         handle.write(f"# {description}\n")
         handle.write("# frame: cell (default placement); sampling 250 Hz with 10 % jitter\n")
         handle.write(header + "\n")
@@ -63,20 +65,38 @@ def write_case(name: str, description: str, t, p, rpy, *, extra=None) -> None:
 def main() -> None:
     OUT.mkdir(exist_ok=True)
     t, p, rpy = approach(40.0, seed=1)
-    write_case("approach_calm.csv", "calm air, 40 s approach: passes with --rail follow", t, p, rpy,
-               extra=np.full(t.size, 8.3))
+    write_case(
+        "approach_calm.csv",
+        "calm air, 40 s approach: passes with --rail follow",
+        t,
+        p,
+        rpy,
+        extra=np.full(t.size, 8.3),
+    )
     t, p, rpy = approach(40.0, seed=2, gust=0.35)
-    write_case("approach_gusty.csv", "gust burst mid-approach: wrist too slow, needs a slow-down",
-               t, p, rpy)
+    write_case(
+        "approach_gusty.csv",
+        "gust burst mid-approach: wrist too slow, needs a slow-down",
+        t,
+        p,
+        rpy,
+    )
     t, p, rpy = approach(40.0, seed=3, lateral_m=2.9)
-    write_case("approach_wide.csv", "vehicle drifts 2.9 m sideways: the pad leaves the arm's reach",
-               t, p, rpy)
+    write_case(
+        "approach_wide.csv",
+        "vehicle drifts 2.9 m sideways: the pad leaves the arm's reach",
+        t,
+        p,
+        rpy,
+    )
     t, p, rpy = approach(40.0, seed=4, pitch_up_deg=40.0)
-    write_case("approach_steep.csv", "steep pitch-up final: the wrist passes its straight pose",
-               t, p, rpy)
+    write_case(
+        "approach_steep.csv", "steep pitch-up final: the wrist passes its straight pose", t, p, rpy
+    )
     t, p, rpy = approach(3.5, seed=5)
-    write_case("approach_rushed.csv", "the whole approach in 3.5 s: rail and arm too slow",
-               t, p, rpy)
+    write_case(
+        "approach_rushed.csv", "the whole approach in 3.5 s: rail and arm too slow", t, p, rpy
+    )
 
 
 if __name__ == "__main__":
