@@ -12,32 +12,6 @@ from reachgate.robot import Chain, Robot
 from reachgate.transforms import cos_sin
 
 
-def dh_transforms(chain: Chain, q_arm: np.ndarray) -> np.ndarray:
-    """Link transforms A_i for every sample, (N, n) arm values -> (N, n, 4, 4).
-
-    A_i = Rz(theta_i) Tz(d_i) Tx(a_i) Rx(alpha_i) (standard form, see robot.Chain).
-    """
-    q_arm = np.asarray(q_arm, dtype=float)
-    theta = np.where(chain.revolute, q_arm + chain.theta_offset_rad, chain.theta_offset_rad)
-    d = np.where(chain.revolute, chain.d_m, q_arm + chain.d_m)
-    ct, st = np.cos(theta), np.sin(theta)
-    ca, sa = np.cos(chain.alpha_rad), np.sin(chain.alpha_rad)
-    A = np.zeros((*q_arm.shape, 4, 4))
-    A[..., 0, 0] = ct
-    A[..., 0, 1] = -st * ca
-    A[..., 0, 2] = st * sa
-    A[..., 0, 3] = chain.a_m * ct
-    A[..., 1, 0] = st
-    A[..., 1, 1] = ct * ca
-    A[..., 1, 2] = -ct * sa
-    A[..., 1, 3] = chain.a_m * st
-    A[..., 2, 1] = sa
-    A[..., 2, 2] = ca
-    A[..., 2, 3] = d
-    A[..., 3, 3] = 1.0
-    return A
-
-
 def cell_T_base(robot: Robot, rail_m: np.ndarray | None) -> np.ndarray:
     """Arm base poses in the cell, (N,) rail positions (or None) -> (N, 4, 4) (or (4, 4))."""
     if robot.rail is None or rail_m is None:
@@ -54,25 +28,6 @@ def split_axes(robot: Robot, q: np.ndarray) -> tuple[np.ndarray | None, np.ndarr
     if robot.has_rail:
         return q[..., 0], q[..., 1:]
     return None, q
-
-
-def chain_frames(robot: Robot, q: np.ndarray) -> np.ndarray:
-    """Cell poses of the frames before each arm joint and of the TCP.
-
-    (N, n_axes) -> (N, n + 1, 4, 4): entry i (< n) is the frame whose z axis is joint i+1's
-    axis; entry n is cell_T_tool.
-    """
-    rail_m, q_arm = split_axes(robot, q)
-    chain = robot.chain
-    n_samples = q_arm.shape[0]
-    A = dh_transforms(chain, q_arm)
-    frames = np.empty((n_samples, chain.n + 1, 4, 4))
-    current = np.broadcast_to(cell_T_base(robot, rail_m) @ chain.base_T_chain, (n_samples, 4, 4))
-    for i in range(chain.n):
-        frames[:, i] = current
-        current = current @ A[:, i]
-    frames[:, chain.n] = current @ robot.flange_T_tool
-    return frames
 
 
 #: |cos α| or |sin α| within this of 0 or 1 is taken as exactly that, so that links with
@@ -197,14 +152,15 @@ def jacobian(robot: Robot, q: np.ndarray) -> np.ndarray:
     Rows are [v_x, v_y, v_z, ω_x, ω_y, ω_z] (m/s and rad/s per unit axis rate); the rail
     column (if any) is the rail's +x direction in the cell.
     """
-    frames = chain_frames(robot, q)
-    z = frames[:, :-1, :3, 2]  # (N, n, 3)
-    origins = frames[:, :-1, :3, 3]
-    p_tool = frames[:, -1, :3, 3][:, None, :]
-    revolute = robot.chain.revolute[None, :, None]
-    linear = np.where(revolute, np.cross(z, p_tool - origins), z)
-    angular = np.where(revolute, z, 0.0)
-    J_arm = np.concatenate([linear, angular], axis=2).transpose(0, 2, 1)  # (N, 6, n)
+    _, q_arm = split_axes(robot, q)
+    chain_T_flange, J_chain = chain_pose_jacobian(robot.chain, q_arm)  # at the flange origin
+    # move the reference point to the TCP (v += ω × r, r the flange-to-TCP lever in the
+    # chain frame), then turn both parts into the cell (the rail only translates the chain)
+    lever = chain_T_flange[:, :3, :3] @ robot.flange_T_tool[:3, 3]  # (N, 3)
+    v, w = J_chain[:, :3], J_chain[:, 3:]  # (N, 3, n)
+    v = v + np.cross(w, lever[:, :, None], axis=1)
+    cell_R_chain = (robot.cell_T_rail @ robot.carriage_T_base @ robot.chain.base_T_chain)[:3, :3]
+    J_arm = np.concatenate([cell_R_chain @ v, cell_R_chain @ w], axis=1)  # (N, 6, n)
     if not robot.has_rail:
         return J_arm
     rail_x = np.broadcast_to(robot.cell_T_rail[:3, 0], (J_arm.shape[0], 3))
