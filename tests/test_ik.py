@@ -25,6 +25,7 @@ from reachgate.ik import (
     SolverKind,
     chain_targets,
     continuous_angles,
+    quaternion_map,
     solve_path,
     target_map,
     target_rows,
@@ -361,7 +362,7 @@ def test_target_rows_from_quaternions_equal_those_from_placed_matrices():
     )
     cell_T_tool = cell_T_scenario @ transform(quat_to_matrix(q_wxyz), scenario_p_m)
     from_quaternions = target_rows_from_quaternions(
-        target_map(robot, cell_T_scenario), q_wxyz, scenario_p_m, rail_m
+        quaternion_map(target_map(robot, cell_T_scenario)), q_wxyz, scenario_p_m, rail_m
     )
     np.testing.assert_allclose(
         from_quaternions, target_rows(robot, cell_T_tool, rail_m), atol=1e-13

@@ -120,15 +120,22 @@ def _features(pose_terms: int, p_m: np.ndarray, rail_m: np.ndarray | None) -> np
     return features
 
 
+def quaternion_map(W: np.ndarray) -> np.ndarray:
+    """target_map's W (15, 14) for poses given by quaternion monomials instead: (15, 15)."""
+    return np.concatenate([W[:, :9] @ _QUAT_TO_ROTATION, W[:, 9:]], axis=1)
+
+
 def target_rows_from_quaternions(
-    W: np.ndarray, q_wxyz: np.ndarray, p_m: np.ndarray, rail_m: np.ndarray | None
+    W_quat: np.ndarray, q_wxyz: np.ndarray, p_m: np.ndarray, rail_m: np.ndarray | None
 ) -> np.ndarray:
-    """Target rows (15, N) of scenario poses given as (N, 4) unit quaternions and (N, 3) m."""
+    """Target rows (15, N) of scenario poses given as (N, 4) unit quaternions and (N, 3) m.
+
+    W_quat: quaternion_map(target_map(...)).
+    """
     q_rows = np.ascontiguousarray(q_wxyz.T)  # (4, N)
     features = _features(10, p_m, rail_m)
     for m, (i, j) in enumerate(_MONOMIAL_PAIRS):  # row by row: a fancy-index gather is slower
         np.multiply(q_rows[i], q_rows[j], out=features[m])
-    W_quat = np.concatenate([W[:, :9] @ _QUAT_TO_ROTATION, W[:, 9:]], axis=1)
     return W_quat @ features
 
 
@@ -183,7 +190,7 @@ def solve_trajectory(
     continues from the last joint values of the one before, so the result equals one solve.
     """
     n = trajectory.n_samples
-    W = target_map(robot, cell_T_scenario)
+    W_quat = quaternion_map(target_map(robot, cell_T_scenario))
     solver = _closed_form(robot)
     # filled chunk by chunk, so no list of parts is joined at the end
     q_rows = np.empty((robot.n_axes, n))  # axis-major, as each chunk's q
@@ -195,7 +202,7 @@ def solve_trajectory(
         part = slice(first, min(first + chunk_samples, n))
         rail_part = None if rail_m is None else rail_m[part]
         rows = target_rows_from_quaternions(
-            W, trajectory.scenario_q_wxyz[part], trajectory.scenario_p_m[part], rail_part
+            W_quat, trajectory.scenario_q_wxyz[part], trajectory.scenario_p_m[part], rail_part
         )
         solved = _solve_rows(robot, rows, rail_part, start_arm, solver)
         if part.stop - part.start == n:

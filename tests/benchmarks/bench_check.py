@@ -31,15 +31,19 @@ os.environ.setdefault("MKL_NUM_THREADS", "1")
 import argparse
 import math
 import statistics
+import sys
 import time
+from pathlib import Path
 
 import numpy as np
 
 import reachgate
 from reachgate import CheckSettings, RailPolicy
 from reachgate.kinematics import arm_manipulability, cell_T_base, forward
-from reachgate.robot import robot_from_dict
 from reachgate.transforms import invert_transform, matrix_to_quat, quat_to_matrix, transform
+
+sys.path.insert(0, str(Path(__file__).resolve().parents[1]))  # the tests' shared arms
+from conftest import offset_wrist_arm
 
 RATE_HZ = 1000.0
 DURATION_S = 60.0
@@ -74,28 +78,9 @@ def approach_path(t: np.ndarray) -> reachgate.Trajectory:
 
 
 def offset_wrist_robot() -> reachgate.Robot:
-    """The demo geometry with its wrist axes offset (a4 = 0.04 m, d5 = 0.06 m), no rail."""
-
-    def joint(name, a, alpha, d, offset=0.0, lo=-180.0, hi=180.0, home=0.0):
-        limits = dict(range_deg=[lo, hi], vmax_deg_s=150.0, amax_deg_s2=500.0, home_deg=home)
-        return dict(name=name, a_m=a, alpha_deg=alpha, d_m=d, offset_deg=offset, **limits)
-
-    joints = [
-        joint("j1", 0.30, -90.0, 0.68),
-        joint("j2", 1.05, 0.0, 0.0, offset=-90.0, lo=-140, hi=20, home=-40),
-        joint("j3", 0.20, -90.0, 0.0, lo=-120, hi=160, home=40),
-        joint("j4", 0.04, 90.0, 1.10, lo=-350, hi=350),
-        joint("j5", 0.0, -90.0, 0.06, lo=-125, hi=125, home=60),
-        joint("j6", 0.0, 0.0, 0.22, lo=-360, hi=360),
-    ]
-    data = dict(
-        name="offset wrist arm",
-        convention="standard",
-        mount=dict(xyz_m=[0.0, 0.0, 0.45]),
-        tool=dict(xyz_m=[0.0, 0.0, 0.25], rpy_deg=[-180.0, -30.0, 0.0]),
-        joints=joints,
-    )
-    return robot_from_dict(data, source="bench")
+    """The demo geometry with its wrist axes offset (a4 = 0.04 m, d5 = 0.06 m), no rail: the
+    tests' arm of that name (tests/conftest.py)."""
+    return offset_wrist_arm()
 
 
 def joint_space_path(robot: reachgate.Robot, t: np.ndarray) -> reachgate.Trajectory:
