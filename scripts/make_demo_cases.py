@@ -12,7 +12,7 @@ from pathlib import Path
 
 import numpy as np
 
-from reachgate.transforms import matrix_to_quat, rpy_to_matrix
+from reachgate.model.transforms import matrix_to_quat, rpy_to_matrix
 
 RATE_HZ = 250.0
 OUT = Path(__file__).resolve().parents[1] / "trajectories"

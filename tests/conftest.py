@@ -7,7 +7,7 @@ from pathlib import Path
 import pytest
 
 import reachgate
-from reachgate.robot import robot_from_dict
+from reachgate.model.robot import robot_from_dict
 
 REPO = Path(__file__).resolve().parents[1]
 DEMO_ROBOT = REPO / "robots" / "demo_rail_arm.toml"

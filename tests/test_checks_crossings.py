@@ -25,10 +25,10 @@ from hypothesis import strategies as st
 
 import reachgate
 from reachgate import Check, Severity
-from reachgate.check import SLOWDOWN_MARGIN
-from reachgate.kinematics import forward
-from reachgate.robot import robot_from_dict
-from reachgate.transforms import matrix_to_quat
+from reachgate.checking.pipeline import SLOWDOWN_MARGIN
+from reachgate.kinematics.chain import forward
+from reachgate.model.robot import robot_from_dict
+from reachgate.model.transforms import matrix_to_quat
 
 from conftest import DEMO_ROBOT
 

@@ -16,8 +16,8 @@ import math
 import numpy as np
 import pytest
 
-from reachgate import derivatives
-from reachgate.derivatives import FIT_DEGREE, WINDOW_SAMPLES, time_derivatives
+from reachgate.checking import derivatives
+from reachgate.checking.derivatives import FIT_DEGREE, WINDOW_SAMPLES, time_derivatives
 
 
 def sample_times(rate_hz: float, duration_s: float, jitter: float, seed: int) -> np.ndarray:
@@ -158,7 +158,7 @@ def test_bad_shapes_are_refused():
 
 def test_even_step_shortcut_equals_the_general_fit():
     """The even-step weights are the general fit's, so both paths agree to rounding."""
-    import reachgate.derivatives as d
+    import reachgate.checking.derivatives as d
 
     t = np.arange(5000) * 1e-3 + 3.0
     x = np.column_stack([np.sin(2 * np.pi * 1.3 * t), t**4 / 24])

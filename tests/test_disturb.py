@@ -19,12 +19,12 @@ from scipy import integrate, linalg, signal, stats
 from typer.testing import CliRunner
 
 import reachgate
-from reachgate import disturb, dryden, exact_steps
+from reachgate.checking.derivatives import time_derivatives
 from reachgate.cli import app
-from reachgate.derivatives import time_derivatives
 from reachgate.errors import ReachgateError
-from reachgate.trajectory import Trajectory, load_trajectory, write_trajectory
-from reachgate.transforms import quat_to_matrix, rotation_log
+from reachgate.model.trajectory import Trajectory, load_trajectory, write_trajectory
+from reachgate.model.transforms import quat_to_matrix, rotation_log
+from reachgate.motion import disturb, dryden, exact_steps
 
 FT = 0.3048
 KT = 1852.0 / 3600.0

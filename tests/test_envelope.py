@@ -10,7 +10,8 @@ import pytest
 from typer.testing import CliRunner
 
 from reachgate.cli import app
-from reachgate.envelope import (
+from reachgate.model.robot import load_robot
+from reachgate.motion.envelope import (
     REL_TOL,
     STEP_GROWTH,
     Direction,
@@ -18,7 +19,6 @@ from reachgate.envelope import (
     rest_steps,
     unit_sine,
 )
-from reachgate.robot import load_robot
 
 from conftest import DEMO_ROBOT, REPO
 

@@ -21,7 +21,10 @@ from scipy.spatial.transform import Rotation
 from spatialmath import SE3
 
 import reachgate
-from reachgate.ik import (
+from reachgate.kinematics.chain import cell_T_base, forward
+from reachgate.kinematics.closed_form import ALL_BRANCHES, SphericalWristSolver, is_spherical_wrist
+from reachgate.kinematics.numeric import solve_path_numeric
+from reachgate.kinematics.path_ik import (
     SolverKind,
     chain_targets,
     continuous_angles,
@@ -31,11 +34,8 @@ from reachgate.ik import (
     target_rows,
     target_rows_from_quaternions,
 )
-from reachgate.ik_closed import ALL_BRANCHES, SphericalWristSolver, is_spherical_wrist
-from reachgate.ik_numeric import solve_path_numeric
-from reachgate.kinematics import cell_T_base, forward
-from reachgate.robot import robot_from_dict
-from reachgate.transforms import matrix_to_quat, quat_to_matrix, rpy_to_matrix, transform
+from reachgate.model.robot import robot_from_dict
+from reachgate.model.transforms import matrix_to_quat, quat_to_matrix, rpy_to_matrix, transform
 
 from conftest import DEMO_ROBOT, offset_wrist_arm
 

@@ -9,12 +9,12 @@ from roboticstoolbox import DHRobot, RevoluteDH
 from spatialmath import SE3
 
 import reachgate
-from reachgate.checks import Check, Severity
-from reachgate.ik import chain_targets
-from reachgate.ik_closed import ALL_BRANCHES, SphericalWristSolver, is_spherical_wrist
-from reachgate.ik_configurations import fits_range, other_configuration_fits
-from reachgate.kinematics import forward
-from reachgate.transforms import matrix_to_quat
+from reachgate.checking.intervals import Check, Severity
+from reachgate.kinematics.chain import forward
+from reachgate.kinematics.closed_form import ALL_BRANCHES, SphericalWristSolver, is_spherical_wrist
+from reachgate.kinematics.configurations import fits_range, other_configuration_fits
+from reachgate.kinematics.path_ik import chain_targets
+from reachgate.model.transforms import matrix_to_quat
 
 from conftest import DEMO_ROBOT, offset_wrist_arm
 

@@ -6,10 +6,10 @@ from __future__ import annotations
 import numpy as np
 
 import reachgate
-from reachgate.ik import chain_targets
-from reachgate.ik_numeric import MAX_ITERATIONS_SEQUENTIAL, _refine_single, refine
-from reachgate.kinematics import forward
-from reachgate.transforms import matrix_to_quat, rpy_to_matrix
+from reachgate.kinematics.chain import forward
+from reachgate.kinematics.numeric import MAX_ITERATIONS_SEQUENTIAL, _refine_single, refine
+from reachgate.kinematics.path_ik import chain_targets
+from reachgate.model.transforms import matrix_to_quat, rpy_to_matrix
 
 from conftest import REPO, offset_wrist_arm
 
@@ -55,8 +55,8 @@ def test_a_solver_that_returns_nan_and_claims_success_cannot_make_a_pass(monkeyp
     """The forward-kinematics check of every solution is the safety net: joint values that
     are NaN (a solver gone astray) with zero reported error count as out of reach, so the
     verdict is fail, never pass."""
-    import reachgate.ik as ik_module
-    from reachgate.ik_numeric import NumericSolution
+    import reachgate.kinematics.path_ik as ik_module
+    from reachgate.kinematics.numeric import NumericSolution
 
     robot = offset_wrist_arm()
     t = np.linspace(0.0, 2.0, 201)
@@ -81,7 +81,7 @@ def test_a_solver_that_returns_nan_and_claims_success_cannot_make_a_pass(monkeyp
 def test_seeds_between_solved_samples_are_exact_for_cubic_joint_motion():
     """Analytic: cubic Lagrange interpolation through two solved samples on each side gives a
     cubic exactly; where a side has one solved sample only, the seed is the linear one."""
-    from reachgate.ik_numeric import _interpolated_seeds
+    from reachgate.kinematics.numeric import _interpolated_seeds
 
     index = np.arange(40)
     q = np.column_stack([0.3 + 0.01 * index - 2e-4 * index**2 + 3e-6 * index**3, 0.5 * index])

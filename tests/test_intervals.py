@@ -7,7 +7,7 @@ import itertools
 import numpy as np
 import pytest
 
-from reachgate.checks import Check, IntervalStream, Severity, intervals, sort_rows
+from reachgate.checking.intervals import Check, IntervalStream, Severity, intervals, sort_rows
 
 
 def rows_of(t, excess, band, chunks=None):

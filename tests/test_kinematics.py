@@ -22,15 +22,15 @@ from scipy.spatial.transform import Rotation
 from spatialmath import SE3
 
 import reachgate
-from reachgate.kinematics import (
+from reachgate.kinematics.chain import (
     arm_manipulability,
     chain_pose_jacobian,
     forward,
     jacobian,
     manipulability,
 )
-from reachgate.robot import robot_from_dict
-from reachgate.transforms import transform_from_xyz_rpy
+from reachgate.model.robot import robot_from_dict
+from reachgate.model.transforms import transform_from_xyz_rpy
 
 from conftest import DEMO_ROBOT
 

@@ -6,9 +6,10 @@ import numpy as np
 import pytest
 
 import reachgate
-from reachgate.check import stretched
-from reachgate.ik import solve_trajectory
-from reachgate.rail import RailPolicy, first_order_lowpass, follow_filter
+from reachgate.checking.intervals import RATE_CHECKS
+from reachgate.checking.pipeline import stretched
+from reachgate.checking.rail import RailPolicy, first_order_lowpass, follow_filter
+from reachgate.kinematics.path_ik import solve_trajectory
 
 from conftest import DEMO_CASES, DEMO_ROBOT
 
@@ -93,7 +94,7 @@ def test_the_slowdown_factor_itself_clears_every_rate_row(robot, case, rail):
     rate_rows = [
         v
         for v in again.violations
-        if v.check in reachgate.checks.RATE_CHECKS and v.severity is reachgate.Severity.VIOLATION
+        if v.check in RATE_CHECKS and v.severity is reachgate.Severity.VIOLATION
     ]
     assert rate_rows == []
     assert again.slowdown in (1.0, None)  # None: only rows no stretch clears are left
@@ -125,9 +126,7 @@ def test_placement_along_the_rail_goes_to_the_rail_when_it_follows(robot):
 
 
 def test_rate_checks_in_blocks_equal_one_pass(robot, monkeypatch):
-    import importlib
-
-    check_module = importlib.import_module("reachgate.check")  # the module, not the function
+    import reachgate.checking.pipeline as check_module
 
     path = sway_path(amplitude_m=0.3, freq_hz=1.2)
     monkeypatch.setattr(check_module, "RATE_BLOCK_SAMPLES", 10**9)
@@ -140,7 +139,7 @@ def test_rate_checks_in_blocks_equal_one_pass(robot, monkeypatch):
 
 
 def test_arm_manipulability_in_blocks_equals_one_jacobian_pass(robot, monkeypatch):
-    from reachgate import kinematics
+    from reachgate.kinematics import chain as kinematics
 
     rng = np.random.default_rng(41)
     q = rng.uniform(robot.lower, robot.upper, (1000, robot.n_axes))

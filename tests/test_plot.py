@@ -8,12 +8,15 @@ import numpy as np
 import pytest
 from typer.testing import CliRunner
 
-from reachgate.check import check
+from reachgate.checking.pipeline import check
 from reachgate.cli import app
-from reachgate.envelope import Direction, envelope
 from reachgate.errors import ReachgateError
-from reachgate.kinematics import forward
-from reachgate.plot import (
+from reachgate.kinematics.chain import forward
+from reachgate.model.robot import load_robot, robot_from_dict
+from reachgate.model.trajectory import Trajectory
+from reachgate.model.transforms import matrix_to_quat
+from reachgate.motion.envelope import Direction, envelope
+from reachgate.render.pictures import (
     DPI,
     ENVELOPE_SIZE_IN,
     REPORT_SIZE_IN,
@@ -21,9 +24,6 @@ from reachgate.plot import (
     plot_envelope,
     plot_report,
 )
-from reachgate.robot import load_robot, robot_from_dict
-from reachgate.trajectory import Trajectory
-from reachgate.transforms import matrix_to_quat
 
 from conftest import DEMO_CASES, DEMO_ROBOT, REPO
 

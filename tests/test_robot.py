@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 
 from reachgate.errors import ReachgateError
-from reachgate.robot import Convention, JointKind, load_robot
+from reachgate.model.robot import Convention, JointKind, load_robot
 
 from conftest import DEMO_ROBOT
 
@@ -161,8 +161,8 @@ def test_bad_vector_length_is_refused(tmp_path):
 
 def test_modified_convention_converts_to_an_equivalent_standard_chain():
     """A Craig table and its regrouped standard table give the same FK (exact algebra)."""
-    from reachgate.kinematics import forward
-    from reachgate.robot import robot_from_dict
+    from reachgate.kinematics.chain import forward
+    from reachgate.model.robot import robot_from_dict
 
     rng = np.random.default_rng(11)
     a, alpha, d = rng.uniform(-0.5, 0.5, 4), rng.uniform(-np.pi, np.pi, 4), rng.uniform(0, 0.5, 4)

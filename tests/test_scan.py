@@ -16,10 +16,7 @@ import pytest
 from typer.testing import CliRunner
 
 import reachgate
-from reachgate.check import CheckSettings, check
-from reachgate.cli import app
-from reachgate.kinematics import forward
-from reachgate.scan import (
+from reachgate.batch.scan import (
     WORKER_THREAD_VARIABLES,
     ScanProgress,
     _run_local,
@@ -29,9 +26,12 @@ from reachgate.scan import (
     render_summary,
     scan,
 )
-from reachgate.store import CaseVerdict
-from reachgate.trajectory import Trajectory, load_trajectory, write_trajectory
-from reachgate.transforms import matrix_to_quat, rpy_to_matrix
+from reachgate.batch.store import CaseVerdict
+from reachgate.checking.pipeline import CheckSettings, check
+from reachgate.cli import app
+from reachgate.kinematics.chain import forward
+from reachgate.model.trajectory import Trajectory, load_trajectory, write_trajectory
+from reachgate.model.transforms import matrix_to_quat, rpy_to_matrix
 
 from conftest import DEMO_ROBOT
 

@@ -10,16 +10,16 @@ import numpy as np
 import pytest
 from scipy.spatial.transform import Rotation
 
-import reachgate.trajectory as trajectory_module
+import reachgate.model.trajectory as trajectory_module
 from reachgate.errors import ReachgateError
-from reachgate.trajectory import (
+from reachgate.model.trajectory import (
     WRITTEN_COLUMNS,
     Trajectory,
     load_trajectory,
     rpy_to_quat,
     write_trajectory,
 )
-from reachgate.transforms import UNIT_QUATERNION_TOL, matrix_to_quat, rpy_to_matrix
+from reachgate.model.transforms import UNIT_QUATERNION_TOL, matrix_to_quat, rpy_to_matrix
 
 HEADER = "t_s,x_m,y_m,z_m,qw,qx,qy,qz"
 

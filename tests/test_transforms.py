@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 from scipy.spatial.transform import Rotation
 
-from reachgate.transforms import (
+from reachgate.model.transforms import (
     cos_sin,
     invert_transform,
     matrix_to_quat,

@@ -9,19 +9,13 @@ Library use::
     print(report.verdict, report.slowdown, report.to_json())
 """
 
-from importlib.metadata import PackageNotFoundError, version
-
-try:
-    __version__ = version("reachgate")
-except PackageNotFoundError:  # running from a source tree without installing
-    __version__ = "0.0.0+source"
-
-from reachgate.check import CheckSettings, Placement, Report, Verdict, check
-from reachgate.checks import Check, Severity, Violation
+from reachgate.checking.intervals import Check, Severity, Violation
+from reachgate.checking.pipeline import CheckSettings, Placement, Report, Verdict, check
+from reachgate.checking.rail import RailPolicy
 from reachgate.errors import ReachgateError
-from reachgate.rail import RailPolicy
-from reachgate.robot import Robot, load_robot, robot_from_dict
-from reachgate.trajectory import Trajectory, load_trajectory
+from reachgate.model.robot import Robot, load_robot, robot_from_dict
+from reachgate.model.trajectory import Trajectory, load_trajectory
+from reachgate.version import __version__
 
 __all__ = [
     "Check",

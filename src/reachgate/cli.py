@@ -14,9 +14,9 @@ from typing import Annotated, TypeVar
 
 import typer
 
-from reachgate.check import DEFAULT_LAG_TOL_M
+from reachgate.checking.pipeline import DEFAULT_LAG_TOL_M
+from reachgate.checking.rail import DEFAULT_BANDWIDTH_HZ
 from reachgate.errors import ReachgateError
-from reachgate.rail import DEFAULT_BANDWIDTH_HZ
 
 DEFAULT_LAG_TOL_MM = DEFAULT_LAG_TOL_M * 1000.0
 
@@ -89,8 +89,8 @@ LagTolOption = Annotated[
 
 def settings_from_options(place, rail, rail_at, rail_bandwidth, lag, lag_tol):
     """CheckSettings from the shared check/scan options (SI inside)."""
-    from reachgate.check import CheckSettings, Placement
-    from reachgate.rail import RailPolicy
+    from reachgate.checking.pipeline import CheckSettings, Placement
+    from reachgate.checking.rail import RailPolicy
 
     return CheckSettings(
         placement=Placement() if place is None else Placement.parse(place),
@@ -128,10 +128,10 @@ def check_command(
     ] = None,
 ) -> None:
     """Check one case: can the arm follow every sample of the trajectory?"""
-    from reachgate.check import check
-    from reachgate.report import render, write_joints
-    from reachgate.robot import load_robot
-    from reachgate.trajectory import load_trajectory
+    from reachgate.checking.pipeline import check
+    from reachgate.model.robot import load_robot
+    from reachgate.model.trajectory import load_trajectory
+    from reachgate.render.check_report import render, write_joints
 
     settings = _guarded(
         lambda: settings_from_options(place, rail, rail_at, rail_bandwidth, lag, lag_tol)
@@ -143,7 +143,7 @@ def check_command(
     if joints_out is not None:
         _guarded(lambda: write_joints(report, joints_out, model.axes))
     if plot is not None:
-        from reachgate.plot import plot_report
+        from reachgate.render.pictures import plot_report
 
         _guarded(lambda: plot_report(report, model, plot))
     raise typer.Exit(EXIT_PASS if report.passed else EXIT_FAIL)
@@ -157,8 +157,8 @@ def robot_command(
     robot: Annotated[Path, typer.Argument(help="Robot description (TOML).")],
 ) -> None:
     """Load, validate and describe a robot: DH table, limits, home pose, reach, IK solver."""
-    from reachgate.describe import describe_robot
-    from reachgate.robot import load_robot
+    from reachgate.model.robot import load_robot
+    from reachgate.render.describe import describe_robot
 
     model = _guarded(lambda: load_robot(robot))
     _write_or_print(describe_robot(model), None)
@@ -195,8 +195,8 @@ def perturb_command(
     ] = None,
 ) -> None:
     """Write disturbance cases of a nominal path: Dryden turbulence (MIL-F-8785C), for a scan."""
-    from reachgate.disturb import make_disturbance_cases, write_disturbance_cases
-    from reachgate.trajectory import load_trajectory
+    from reachgate.model.trajectory import load_trajectory
+    from reachgate.motion.disturb import make_disturbance_cases, write_disturbance_cases
 
     if intensity is None and sigma is None:
         intensity = "moderate"
@@ -243,15 +243,15 @@ def envelope_command(
     ] = None,
 ) -> None:
     """Largest sinusoid amplitude the arm can follow around a pose, per direction and frequency."""
-    from reachgate.envelope import (
+    from reachgate.checking.rail import RailPolicy
+    from reachgate.model.robot import load_robot
+    from reachgate.motion.envelope import (
         envelope,
         frequencies_from_range,
         parse_directions,
         parse_pose,
         render_envelope,
     )
-    from reachgate.rail import RailPolicy
-    from reachgate.robot import load_robot
 
     directions = _guarded(lambda: parse_directions(axes))
     frequencies = _guarded(lambda: frequencies_from_range(freq_range, freqs))
@@ -270,7 +270,7 @@ def envelope_command(
     )
     _write_or_print(render_envelope(result, fmt.value), out)
     if plot is not None:
-        from reachgate.plot import plot_envelope
+        from reachgate.render.pictures import plot_envelope
 
         _guarded(lambda: plot_envelope(result, plot))
     raise typer.Exit(EXIT_PASS)
@@ -327,7 +327,7 @@ def scan_command(
     """Check many cases with one robot and one set of options; results in a store, resumable."""
     from contextlib import nullcontext
 
-    from reachgate.scan import ProgressBar, load_summary, render_summary, scan
+    from reachgate.batch.scan import ProgressBar, load_summary, render_summary, scan
 
     if report:
         if store is None:

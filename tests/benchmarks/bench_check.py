@@ -39,8 +39,8 @@ import numpy as np
 
 import reachgate
 from reachgate import CheckSettings, RailPolicy
-from reachgate.kinematics import arm_manipulability, cell_T_base, forward
-from reachgate.transforms import invert_transform, matrix_to_quat, quat_to_matrix, transform
+from reachgate.kinematics.chain import arm_manipulability, cell_T_base, forward
+from reachgate.model.transforms import invert_transform, matrix_to_quat, quat_to_matrix, transform
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))  # the tests' shared arms
 from conftest import offset_wrist_arm

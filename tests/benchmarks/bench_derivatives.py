@@ -19,7 +19,7 @@ import time
 import numpy as np
 from numpy.polynomial import polynomial
 
-from reachgate.derivatives import FIT_DEGREE, WINDOW_SAMPLES, time_derivatives
+from reachgate.checking.derivatives import FIT_DEGREE, WINDOW_SAMPLES, time_derivatives
 
 
 def reference(t_s: np.ndarray, x: np.ndarray, count: int) -> np.ndarray:

@@ -17,7 +17,7 @@ from pathlib import Path
 
 import numpy as np
 
-from reachgate.trajectory import Trajectory, load_trajectory, write_trajectory
+from reachgate.model.trajectory import Trajectory, load_trajectory, write_trajectory
 
 
 def best_of(repeats: int, call) -> float:

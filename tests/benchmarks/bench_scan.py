@@ -39,7 +39,7 @@ GUST_MAX = 0.3
 
 def approach_case(seed: int):
     """One approach along the rail with a gust burst of random size. -> Trajectory."""
-    from reachgate.trajectory import Trajectory
+    from reachgate.model.trajectory import Trajectory
 
     rng = np.random.default_rng(seed)
     n = int(DURATION_S * RATE_HZ)
@@ -68,7 +68,7 @@ def approach_case(seed: int):
 
 
 def write_case(args: tuple[Path, int]) -> None:
-    from reachgate.trajectory import write_trajectory
+    from reachgate.model.trajectory import write_trajectory
 
     folder, seed = args
     write_trajectory(folder / f"approach_{seed:04d}.csv", approach_case(seed), ("bench case",))
@@ -104,7 +104,7 @@ def main() -> None:
     args = parser.parse_args()
 
     from reachgate import CheckSettings, RailPolicy
-    from reachgate.scan import scan
+    from reachgate.batch.scan import scan
 
     with tempfile.TemporaryDirectory(prefix="reachgate_bench_") as tmp:
         folder = Path(tmp) / "cases"

@@ -57,7 +57,7 @@ import numpy as np
 
 import reachgate
 from reachgate import Check, CheckSettings, RailPolicy
-from reachgate.trajectory import load_trajectory, write_trajectory
+from reachgate.model.trajectory import load_trajectory, write_trajectory
 
 DEMO_ROBOT = Path(__file__).resolve().parents[2] / bench_check.DEMO_ROBOT
 RATE_HZ = bench_check.RATE_HZ

@@ -13,13 +13,18 @@ from enum import Enum
 
 import numpy as np
 
-from reachgate.ik_closed import ALL_BRANCHES, Branch, SphericalWristSolver, is_spherical_wrist
-from reachgate.ik_configurations import fits_range, other_configuration_fits
-from reachgate.ik_numeric import solve_path_numeric
-from reachgate.kinematics import IDENTITY_COLUMNS, compose_links
-from reachgate.robot import Robot
-from reachgate.trajectory import Trajectory
-from reachgate.transforms import invert_transform
+from reachgate.kinematics.chain import IDENTITY_COLUMNS, compose_links
+from reachgate.kinematics.closed_form import (
+    ALL_BRANCHES,
+    Branch,
+    SphericalWristSolver,
+    is_spherical_wrist,
+)
+from reachgate.kinematics.configurations import fits_range, other_configuration_fits
+from reachgate.kinematics.numeric import solve_path_numeric
+from reachgate.model.robot import Robot
+from reachgate.model.trajectory import Trajectory
+from reachgate.model.transforms import invert_transform
 
 #: A solved sample whose FK misses the target by more than this is counted unreachable (m, rad).
 RESIDUAL_TOL_M = 1e-9

@@ -14,9 +14,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from reachgate.kinematics import chain_pose_jacobian
-from reachgate.robot import Chain
-from reachgate.transforms import rotation_angle, rotation_log
+from reachgate.kinematics.chain import chain_pose_jacobian
+from reachgate.model.robot import Chain
+from reachgate.model.transforms import rotation_angle, rotation_log
 
 #: Iterations stop once the position error is below this (m) and the orientation error
 #: below that (rad). Far below the 1e-9 that counts as solved, because the jerk estimate

@@ -12,8 +12,8 @@ from pathlib import Path
 
 import numpy as np
 
-from reachgate.check import Report
-from reachgate.checks import ROW_KEYS, Severity
+from reachgate.checking.intervals import ROW_KEYS, Severity
+from reachgate.checking.pipeline import Report
 
 SAFETY_CAUTIONS = (
     "A pass here is not a safety validation of the cell or the path.",

@@ -13,11 +13,11 @@ from pathlib import Path
 
 import numpy as np
 
-from reachgate.check import SINGULARITY_NEAR_FACTOR, UNTRUSTED_NEIGHBOURS, Report
-from reachgate.checks import Check, Violation
+from reachgate.checking.intervals import Check, Violation
+from reachgate.checking.pipeline import SINGULARITY_NEAR_FACTOR, UNTRUSTED_NEIGHBOURS, Report
 from reachgate.errors import ReachgateError
-from reachgate.kinematics import arm_manipulability
-from reachgate.robot import Robot
+from reachgate.kinematics.chain import arm_manipulability
+from reachgate.model.robot import Robot
 
 #: Figure size and resolution of the check picture: 1200 × 900 pixels.
 REPORT_SIZE_IN = (12.0, 9.0)
@@ -119,7 +119,7 @@ def _shade(ax, rows: list[Violation], t_s: np.ndarray, hatch_of) -> None:
 
 def _fractions(robot: Robot, report: Report) -> dict[str, np.ndarray]:
     """Signed fractions of each limit, (N, n_axes) per quantity; NaN where not trusted."""
-    from reachgate.derivatives import time_derivatives
+    from reachgate.checking.derivatives import time_derivatives
 
     q = report.solution.q
     rates = time_derivatives(report.t_s, q)

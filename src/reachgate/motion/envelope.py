@@ -26,17 +26,17 @@ from enum import Enum
 
 import numpy as np
 
-from reachgate import __version__
-from reachgate.check import CheckSettings, check
-from reachgate.checks import Check, Severity, Violation
+from reachgate.checking.intervals import Check, Severity, Violation
+from reachgate.checking.pipeline import CheckSettings, check
+from reachgate.checking.rail import DEFAULT_BANDWIDTH_HZ, RailPolicy
 from reachgate.errors import ReachgateError
-from reachgate.ik import SolverKind, solver_kind
-from reachgate.ik_numeric import COARSE_STRIDE
-from reachgate.kinematics import forward
-from reachgate.rail import DEFAULT_BANDWIDTH_HZ, RailPolicy
-from reachgate.robot import Robot
-from reachgate.trajectory import Trajectory
-from reachgate.transforms import matrix_to_quat, matrix_to_rpy, transform_from_xyz_rpy
+from reachgate.kinematics.chain import forward
+from reachgate.kinematics.numeric import COARSE_STRIDE
+from reachgate.kinematics.path_ik import SolverKind, solver_kind
+from reachgate.model.robot import Robot
+from reachgate.model.trajectory import Trajectory
+from reachgate.model.transforms import matrix_to_quat, matrix_to_rpy, transform_from_xyz_rpy
+from reachgate.version import __version__
 
 #: Bisection stops when the failing amplitude is within this factor of the passing one.
 REL_TOL = 0.01
@@ -605,7 +605,7 @@ def render_envelope_table(result: Envelope, width: int = 160) -> str:
     from rich import box
     from rich.table import Table
 
-    from reachgate.report import plain_console
+    from reachgate.render.check_report import plain_console
 
     console, buffer = plain_console(width)
     xyz_mm = result.cell_T_operating[:3, 3] * 1000.0

@@ -13,8 +13,8 @@ from enum import Enum
 
 import numpy as np
 
-from reachgate import __version__
-from reachgate.checks import (
+from reachgate.checking.derivatives import WINDOW_SAMPLES, time_derivatives
+from reachgate.checking.intervals import (
     RATE_CHECKS,
     Check,
     IntervalStream,
@@ -23,14 +23,14 @@ from reachgate.checks import (
     intervals,
     sort_rows,
 )
-from reachgate.derivatives import WINDOW_SAMPLES, time_derivatives
+from reachgate.checking.rail import DEFAULT_BANDWIDTH_HZ, RailPolicy, rail_positions
 from reachgate.errors import ReachgateError
-from reachgate.ik import PathSolution, solve_trajectory
-from reachgate.kinematics import arm_manipulability
-from reachgate.rail import DEFAULT_BANDWIDTH_HZ, RailPolicy, rail_positions
-from reachgate.robot import Robot
-from reachgate.trajectory import Trajectory
-from reachgate.transforms import transform_from_xyz_rpy
+from reachgate.kinematics.chain import arm_manipulability
+from reachgate.kinematics.path_ik import PathSolution, solve_trajectory
+from reachgate.model.robot import Robot
+from reachgate.model.trajectory import Trajectory
+from reachgate.model.transforms import transform_from_xyz_rpy
+from reachgate.version import __version__
 
 #: Default tracking error a loop delay may cause, m (ours; documented in README).
 DEFAULT_LAG_TOL_M = 0.001

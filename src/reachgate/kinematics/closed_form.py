@@ -17,9 +17,9 @@ from itertools import product
 
 import numpy as np
 
-from reachgate.kinematics import IDENTITY_COLUMNS, compose_links
-from reachgate.robot import Chain
-from reachgate.transforms import cos_sin
+from reachgate.kinematics.chain import IDENTITY_COLUMNS, compose_links
+from reachgate.model.robot import Chain
+from reachgate.model.transforms import cos_sin
 
 #: DH parameters closer than this to the special values count as equal (m or rad).
 GEOMETRY_TOL = 1e-9

@@ -16,9 +16,9 @@ import math
 
 import numpy as np
 
-from reachgate.ik_closed import ALL_BRANCHES, SphericalWristSolver, is_spherical_wrist
-from reachgate.ik_numeric import refine
-from reachgate.robot import Chain
+from reachgate.kinematics.closed_form import ALL_BRANCHES, SphericalWristSolver, is_spherical_wrist
+from reachgate.kinematics.numeric import refine
+from reachgate.model.robot import Chain
 
 TWO_PI = 2.0 * np.pi
 #: Samples searched at most per call; on longer stretches every k-th sample is searched and

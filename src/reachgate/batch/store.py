@@ -17,7 +17,7 @@ from dataclasses import dataclass, field
 from enum import Enum
 from pathlib import Path
 
-from reachgate.checks import Check, Severity, Violation
+from reachgate.checking.intervals import Check, Severity, Violation
 from reachgate.errors import ReachgateError
 
 #: Bumped when the tables change; a store of another version is refused, not guessed at.

@@ -21,7 +21,7 @@ from typing import NoReturn
 import numpy as np
 
 from reachgate.errors import ReachgateError
-from reachgate.transforms import UNIT_QUATERNION_TOL, quat_to_matrix, transform
+from reachgate.model.transforms import UNIT_QUATERNION_TOL, quat_to_matrix, transform
 
 #: A quaternion whose length is already this close to 1 is kept bit for bit instead of being
 #: divided by its length: x / |x| is not idempotent in floating point, and a written-then-loaded

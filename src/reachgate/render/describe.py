@@ -6,11 +6,11 @@ import math
 
 import numpy as np
 
-from reachgate.ik import solver_kind
-from reachgate.ik_closed import SphericalWristSolver, is_spherical_wrist
-from reachgate.kinematics import cell_T_base, forward
-from reachgate.robot import Robot
-from reachgate.transforms import matrix_to_rpy
+from reachgate.kinematics.chain import cell_T_base, forward
+from reachgate.kinematics.closed_form import SphericalWristSolver, is_spherical_wrist
+from reachgate.kinematics.path_ik import solver_kind
+from reachgate.model.robot import Robot
+from reachgate.model.transforms import matrix_to_rpy
 
 #: Random configurations used to estimate the TCP's reach from the base (seeded, repeatable).
 REACH_SAMPLES = 20000
@@ -34,7 +34,7 @@ def describe_robot(robot: Robot) -> str:
     from rich import box
     from rich.table import Table
 
-    from reachgate.report import plain_console
+    from reachgate.render.check_report import plain_console
 
     console, buffer = plain_console(110)
     console.print(f"robot: {robot.name} ({robot.source})")

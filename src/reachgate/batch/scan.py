@@ -28,13 +28,7 @@ from dataclasses import dataclass
 from datetime import UTC, datetime
 from pathlib import Path
 
-from reachgate import __version__
-from reachgate.check import CheckSettings, check
-from reachgate.checks import RATE_CHECKS, Check, Severity
-from reachgate.errors import ReachgateError
-from reachgate.rail import rail_positions
-from reachgate.robot import Robot, load_robot, robot_from_dict
-from reachgate.store import (
+from reachgate.batch.store import (
     CaseResult,
     CaseVerdict,
     ScanSummary,
@@ -42,7 +36,13 @@ from reachgate.store import (
     batch_counts,
     load_summary,
 )
-from reachgate.trajectory import import_fast_reader, load_trajectory
+from reachgate.checking.intervals import RATE_CHECKS, Check, Severity
+from reachgate.checking.pipeline import CheckSettings, check
+from reachgate.checking.rail import rail_positions
+from reachgate.errors import ReachgateError
+from reachgate.model.robot import Robot, load_robot, robot_from_dict
+from reachgate.model.trajectory import import_fast_reader, load_trajectory
+from reachgate.version import __version__
 
 __all__ = [
     "DEFAULT_STORE_NAME",
@@ -604,7 +604,7 @@ def render_table(summary: ScanSummary, width: int = 120) -> str:
     from rich import box
     from rich.table import Table
 
-    from reachgate.report import SAFETY_CAUTIONS, plain_console
+    from reachgate.render.check_report import SAFETY_CAUTIONS, plain_console
 
     console, buffer = plain_console(width, soft_wrap=True)
     tally = summary.tally()

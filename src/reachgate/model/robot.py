@@ -18,7 +18,7 @@ from typing import Any
 import numpy as np
 
 from reachgate.errors import ReachgateError
-from reachgate.transforms import transform_from_xyz_rpy
+from reachgate.model.transforms import transform_from_xyz_rpy
 
 
 class Convention(Enum):

@@ -40,7 +40,9 @@ import numpy as np
 from scipy.linalg import solve_continuous_lyapunov
 from scipy.signal import ss2tf
 
-from reachgate.dryden import (
+from reachgate.errors import ReachgateError
+from reachgate.model.trajectory import Trajectory, write_trajectory
+from reachgate.motion.dryden import (
     DEFAULT_AIRSPEED_M_S,
     DEFAULT_ALTITUDE_M,
     DEFAULT_WINGSPAN_M,
@@ -50,9 +52,8 @@ from reachgate.dryden import (
     require_positive,
     shaping_parts,
 )
-from reachgate.errors import ReachgateError
-from reachgate.exact_steps import propagate, psd_factor, step_maps
-from reachgate.trajectory import Trajectory, write_trajectory
+from reachgate.motion.exact_steps import propagate, psd_factor, step_maps
+from reachgate.version import __version__
 
 # Vehicle response (ours): a small winged drone's heave lag behind a vertical gust is about
 # τ = 2m / (ρ S V CLα) (flight-mechanics formula, from memory) ≈ 0.5 s for m = 1.5 kg,
@@ -255,17 +256,6 @@ def _is_whole(value) -> bool:
     return isinstance(value, numbers.Integral) and not isinstance(value, bool)
 
 
-def _tool_version() -> str:
-    import reachgate
-
-    version = getattr(reachgate, "__version__", None)
-    if version is None:
-        from importlib.metadata import version as package_version
-
-        version = package_version("reachgate")
-    return str(version)
-
-
 @dataclass(frozen=True)
 class DisturbanceCase:
     """One disturbance case: the perturbed path, the seed of its own random stream, and the
@@ -312,7 +302,7 @@ def make_disturbance_cases(
     )
     prepared = _Prepared(nominal.t_s, s, washout_s, response_hz)
     common = {
-        "made_by": f"reachgate {_tool_version()} perturb",
+        "made_by": f"reachgate {__version__} perturb",
         "model": (
             "Dryden, MIL-F-8785C low altitude; vehicle response and washout displacement "
             "(reachgate's own)"

@@ -8,8 +8,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from reachgate.robot import Chain, Robot
-from reachgate.transforms import cos_sin
+from reachgate.model.robot import Chain, Robot
+from reachgate.model.transforms import cos_sin
 
 
 def cell_T_base(robot: Robot, rail_m: np.ndarray | None) -> np.ndarray:

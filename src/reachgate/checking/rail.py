@@ -14,8 +14,8 @@ from enum import Enum
 import numpy as np
 
 from reachgate.errors import ReachgateError
-from reachgate.kinematics import forward
-from reachgate.robot import Robot
+from reachgate.kinematics.chain import forward
+from reachgate.model.robot import Robot
 
 #: Default follow bandwidth, Hz (ours: slow enough for a heavy carriage, documented in README).
 DEFAULT_BANDWIDTH_HZ = 0.5

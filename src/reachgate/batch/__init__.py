@@ -1,0 +1,1 @@
+"""Many cases: discovery, local or Dask workers, resume, the SQLite results store."""

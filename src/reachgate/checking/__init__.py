@@ -1,0 +1,1 @@
+"""One case -> Report: rail policy, derivatives, violation intervals, the check pipeline."""

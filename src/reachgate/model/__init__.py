@@ -1,0 +1,1 @@
+"""What the user describes: rotations and transforms, robots, trajectories (lowest layer)."""

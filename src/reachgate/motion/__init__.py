@@ -1,0 +1,1 @@
+"""Motion made or measured: turbulence cases, exact discretisation, the sinusoid envelope."""

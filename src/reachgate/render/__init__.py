@@ -1,0 +1,1 @@
+"""The edge: tables, JSON and CSV, pictures, descriptions and progress for the terminal."""
