@@ -23,7 +23,6 @@ from reachgate.batch.scan import (
     check_case,
     discover_cases,
     load_summary,
-    render_summary,
     scan,
 )
 from reachgate.batch.store import CaseVerdict
@@ -32,6 +31,7 @@ from reachgate.cli import app
 from reachgate.kinematics.chain import forward
 from reachgate.model.trajectory import Trajectory, load_trajectory, write_trajectory
 from reachgate.model.transforms import matrix_to_quat, rpy_to_matrix
+from reachgate.render.scan_report import render_summary
 
 from conftest import DEMO_ROBOT
 

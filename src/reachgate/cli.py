@@ -250,8 +250,8 @@ def envelope_command(
         frequencies_from_range,
         parse_directions,
         parse_pose,
-        render_envelope,
     )
+    from reachgate.render.envelope_report import render_envelope
 
     directions = _guarded(lambda: parse_directions(axes))
     frequencies = _guarded(lambda: frequencies_from_range(freq_range, freqs))
@@ -327,7 +327,8 @@ def scan_command(
     """Check many cases with one robot and one set of options; results in a store, resumable."""
     from contextlib import nullcontext
 
-    from reachgate.batch.scan import ProgressBar, load_summary, render_summary, scan
+    from reachgate.batch.scan import load_summary, scan
+    from reachgate.render.scan_report import ProgressBar, render_summary
 
     if report:
         if store is None:
