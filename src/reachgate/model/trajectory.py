@@ -14,7 +14,7 @@ from __future__ import annotations
 import math
 import sys
 import warnings
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import NoReturn
 
@@ -577,7 +577,8 @@ def load_trajectory(path: str | Path) -> Trajectory:
         columns = _map_columns(names)
     except _HeaderError as error:
         where = f", column {error.column}" if error.column else ""
-        raise ReachgateError(f"{label} line {header_line}{where}: {error.text}") from None
+        hint = _several_bodies_hint(names)
+        raise ReachgateError(f"{label} line {header_line}{where}: {error.text}{hint}") from None
     quaternion_at = 4 if columns.has_quaternion else None
     values = _fast_values(path, header_line, columns)
     if values is None or _first_fault(values, quaternion_at) is not None:
@@ -609,18 +610,254 @@ def write_trajectory(
     Values are written as the shortest decimal that reads back to the same float64 (Python's
     repr), so write -> load gives identical arrays.
     """
-    path = Path(path)
     table = np.column_stack([trajectory.t_s, trajectory.scenario_p_m, trajectory.scenario_q_wxyz])
+    _write_csv(Path(path), WRITTEN_COLUMNS, table, comments)
+
+
+def _write_csv(
+    path: Path, header: tuple[str, ...], table: np.ndarray, comments: tuple[str, ...]
+) -> None:
+    """Comment lines, the header, then (N, C) values as their shortest round-trip decimals."""
     row_format = ",".join(["%r"] * table.shape[1]) + "\n"
     try:
         with path.open("w", encoding="utf-8", newline="\n") as handle:
             for comment in comments:
                 for line in str(comment).splitlines() or [""]:
                     handle.write(f"# {line}\n")
-            handle.write(",".join(WRITTEN_COLUMNS) + "\n")
+            handle.write(",".join(header) + "\n")
             for start in range(0, table.shape[0], _WRITE_BLOCK_ROWS):
                 block = table[start : start + _WRITE_BLOCK_ROWS]
                 # tolist() gives Python floats, whose repr is the shortest round-trip form.
                 handle.write((row_format * block.shape[0]) % tuple(block.ravel().tolist()))
     except OSError as error:
         raise ReachgateError(f"{path}: cannot write ({error.strerror or error})") from None
+
+
+# --- several bodies -----------------------------------------------------------------------------
+
+#: Separates a body's name from its column stem in a several-body file (`drone.x_m`).
+BODY_SEPARATOR = "."
+#: The key of the one body of a file with plain (unprefixed) columns.
+PLAIN_BODY = ""
+
+
+@dataclass(frozen=True, eq=False)
+class Scenario:
+    """The poses of one or more bodies at common times (DESIGN §8).
+
+    t_s: (N,) strictly increasing times in s, shared by every body.
+    bodies: body name -> Trajectory (each with this t_s, poses in the scenario frame); a file
+    of plain columns gives one body under PLAIN_BODY.
+    name: what the scenario is called in reports (the file name for loaded files).
+    ignored_columns: columns of the file that were kept out of the check.
+    """
+
+    t_s: np.ndarray
+    bodies: dict[str, Trajectory]
+    name: str = "arrays"
+    ignored_columns: tuple[str, ...] = field(default=())
+
+    @classmethod
+    def from_trajectories(cls, bodies: dict[str, Trajectory], name: str = "arrays") -> Scenario:
+        """Several bodies' trajectories sampled at the same times -> Scenario."""
+        if not bodies:
+            raise ReachgateError(f"{name}: a scenario needs at least one body")
+        t_s = next(iter(bodies.values())).t_s
+        for body, trajectory in bodies.items():
+            if not np.array_equal(trajectory.t_s, t_s):
+                raise ReachgateError(f"{name}: body {body!r} is not sampled at the same times")
+        return cls(t_s=t_s, bodies=dict(bodies), name=name)
+
+    @property
+    def is_plain(self) -> bool:
+        """True for one body given by plain columns."""
+        return tuple(self.bodies) == (PLAIN_BODY,)
+
+    @property
+    def n_samples(self) -> int:
+        return int(self.t_s.size)
+
+    @property
+    def duration_s(self) -> float:
+        return float(self.t_s[-1] - self.t_s[0])
+
+    def body(self, name: str, only_one: bool = False) -> Trajectory:
+        """The trajectory of body `name`; the plain columns serve when `only_one` body is asked
+        for. Raises ReachgateError naming the bodies the scenario has."""
+        if name in self.bodies:
+            return self.bodies[name]
+        if self.is_plain and only_one:
+            return self.bodies[PLAIN_BODY]
+        if self.is_plain:
+            have = "only plain columns (one body); prefix each body's columns, e.g. drone.x_m"
+        else:
+            have = "bodies " + ", ".join(self.bodies)
+        raise ReachgateError(f"{self.name}: no body {name!r} in the scenario (it has {have})")
+
+
+def _several_bodies_hint(names: list[str]) -> str:
+    """For a one-body reader given a several-body header: what to do instead, else ''."""
+    try:
+        bodies = _body_columns(names)
+    except _HeaderError:
+        return ""
+    if not bodies:
+        return ""
+    return f" (the file gives several bodies: {', '.join(bodies)}; check it with a rig file)"
+
+
+def _body_columns(names: list[str]) -> dict[str, list[tuple[int, str]]]:
+    """Columns prefixed with a body name: body -> [(index in the header, stem)], file order."""
+    by_body: dict[str, list[tuple[int, str]]] = {}
+    for i, name in enumerate(names):
+        if BODY_SEPARATOR in name:
+            body, stem = name.rsplit(BODY_SEPARATOR, 1)
+            if not body:
+                raise _HeaderError(name, "no body name before the dot")
+            by_body.setdefault(body, []).append((i, stem))
+    return by_body
+
+
+def _is_pose_column(name: str) -> bool:
+    """True for a name the single-body header reads as a position or orientation."""
+    stem = name.split("_", 1)[0]
+    return name in _QUAT_COLUMNS or stem in _AXES + _ANGLES
+
+
+def _map_bodies(names: list[str]) -> dict[str, _Columns]:
+    """Each body's columns in a several-body header; `use` indexes the whole header.
+
+    Every body is read with the single-body rules (same column choices, same messages, with
+    the column named in full). Raises _HeaderError.
+    """
+    seen: dict[str, int] = {}
+    for i, name in enumerate(names):
+        if not name:
+            raise _HeaderError(None, f"column {i + 1} of the header has no name")
+        if name in seen:
+            raise _HeaderError(
+                name, f"appears twice in the header (columns {seen[name] + 1} and {i + 1})"
+            )
+        seen[name] = i
+    if _TIME_COLUMN not in seen:
+        _raise_unknown_unit_or_missing(names, "t", {"s": 1.0})
+    for name in names:
+        if BODY_SEPARATOR not in name and _is_pose_column(name):
+            raise _HeaderError(
+                name, "a pose column without a body name in a file of several bodies; "
+                "prefix it with its body (e.g. drone.x_m)",
+            )  # fmt: skip
+    mapped: dict[str, _Columns] = {}
+    for body, columns in _body_columns(names).items():
+        stems = [stem for _, stem in columns]
+        try:
+            own = _map_columns([_TIME_COLUMN, *stems])
+        except _HeaderError as error:
+            column = error.column and f"{body}{BODY_SEPARATOR}{error.column}"
+            text = error.text if error.column else f"body {body}: {error.text}"
+            raise _HeaderError(column, text) from None
+        full = [seen[_TIME_COLUMN], *(i for i, _ in columns)]
+        mapped[body] = replace(
+            own,
+            names=tuple(names),
+            use=tuple(full[k] for k in own.use),
+            ignored=tuple(f"{body}{BODY_SEPARATOR}{n}" for n in own.ignored),
+        )
+    return mapped
+
+
+def _earliest_body_fault(
+    values: np.ndarray, line_numbers: list[int] | None, bodies: dict[str, _Columns], label: str
+) -> str | None:
+    """The message of the earliest broken rule over every body's columns, or None.
+
+    values: (N, 1 + the bodies' used columns, in order) with time first.
+    """
+    faults = []
+    at = 1
+    for columns in bodies.values():
+        width = len(columns.use) - 1
+        fault = _first_fault(
+            np.column_stack([values[:, 0], values[:, at : at + width]]),
+            4 if columns.has_quaternion else None,
+        )
+        if fault is not None:
+            row, col, text = fault
+            if columns.has_quaternion and col == 4:
+                where = "columns " + ",".join(columns.names[i] for i in columns.use[4:8])
+            else:
+                where = "column " + columns.names[columns.use[col]]
+            faults.append((row, where, text))
+        at += width
+    if not faults:
+        return None
+    row, where, text = min(faults, key=lambda f: f[0])
+    line = f" line {line_numbers[row]}" if line_numbers is not None else ""
+    return f"{label}{line}, {where}: {text}"
+
+
+def load_scenario(path: str | Path) -> Scenario:
+    """Load and validate a scenario CSV of one or more bodies (DESIGN §4, §8).
+
+    Plain columns (`x_m`, `qw`, ...) give one body, loaded exactly as load_trajectory does, under
+    PLAIN_BODY. Columns prefixed with a body name and a dot (`drone.x_m`, `pad.qw`) give one
+    body each, with the single-body column choices and rules; other columns are kept out and
+    named in ignored_columns. Raises ReachgateError naming file, line and column.
+    """
+    path = Path(path)
+    label = str(path)
+    header_line, names = _read_header(path, label)
+    try:
+        has_bodies = bool(_body_columns(names))
+        bodies = _map_bodies(names) if has_bodies else {}
+    except _HeaderError as error:
+        where = f", column {error.column}" if error.column else ""
+        raise ReachgateError(f"{label} line {header_line}{where}: {error.text}") from None
+    if not has_bodies:
+        trajectory = load_trajectory(path)
+        return Scenario(
+            t_s=trajectory.t_s,
+            bodies={PLAIN_BODY: trajectory},
+            name=trajectory.name,
+            ignored_columns=trajectory.ignored_columns,
+        )
+    t_index = names.index(_TIME_COLUMN)
+    use = (t_index, *(i for columns in bodies.values() for i in columns.use[1:]))
+    read = _Columns(names=tuple(names), use=use, length_scale=1.0, angle_scale=1.0, ignored=())
+    values = _fast_values(path, header_line, read)
+    if values is None or _earliest_body_fault(values, None, bodies, label) is not None:
+        values, line_numbers = _scan_values(path, label, header_line, read)
+        message = _earliest_body_fault(values, line_numbers, bodies, label)
+        if message is not None:
+            raise ReachgateError(message)
+    t_s = np.ascontiguousarray(values[:, 0])
+    trajectories = {}
+    at = 1
+    for body, columns in bodies.items():
+        p_m = values[:, at : at + 3] * columns.length_scale
+        if columns.has_quaternion:
+            q = _normalised(values[:, at + 3 : at + 7])
+        else:
+            q = rpy_to_quat(values[:, at + 3 : at + 6] * columns.angle_scale)
+        at += len(columns.use) - 1
+        trajectories[body] = Trajectory(
+            t_s=t_s, scenario_p_m=p_m, scenario_q_wxyz=q, name=f"{path.name} ({body})"
+        )
+    used = set(use)
+    ignored = tuple(n for i, n in enumerate(names) if i not in used)
+    return Scenario(t_s=t_s, bodies=trajectories, name=path.name, ignored_columns=ignored)
+
+
+def write_scenario(path: str | Path, scenario: Scenario, comments: tuple[str, ...] = ()) -> None:
+    """Write a scenario as CSV: '# ' comment lines, then t_s and each body's
+    BODY.x_m,...,BODY.qz (plain columns for a PLAIN_BODY scenario); shortest round-trip decimals.
+    """
+    if scenario.is_plain:
+        write_trajectory(path, scenario.bodies[PLAIN_BODY], comments)
+        return
+    header = [_TIME_COLUMN]
+    parts = [scenario.t_s]
+    for body, trajectory in scenario.bodies.items():
+        header += [f"{body}{BODY_SEPARATOR}{c}" for c in WRITTEN_COLUMNS[1:]]
+        parts += [trajectory.scenario_p_m, trajectory.scenario_q_wxyz]
+    _write_csv(Path(path), tuple(header), np.column_stack(parts), comments)
