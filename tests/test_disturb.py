@@ -25,6 +25,7 @@ from reachgate.errors import ReachgateError
 from reachgate.model.trajectory import Trajectory, load_trajectory, write_trajectory
 from reachgate.model.transforms import quat_to_matrix, rotation_log
 from reachgate.motion import disturb, dryden, exact_steps
+from reachgate.render.cases import write_case_files
 
 FT = 0.3048
 KT = 1852.0 / 3600.0
@@ -453,13 +454,13 @@ def nominal_path(samples=400, seed=105):
 
 def test_case_files_are_identical_for_the_same_seed_and_differ_for_another(tmp_path):
     nominal = nominal_path()
-    first = disturb.write_disturbance_cases(
+    first = write_case_files(
         disturb.make_disturbance_cases(nominal, 3, 11), tmp_path / "a", "glide"
     )
-    again = disturb.write_disturbance_cases(
+    again = write_case_files(
         disturb.make_disturbance_cases(nominal, 3, 11), tmp_path / "b", "glide"
     )
-    other = disturb.write_disturbance_cases(
+    other = write_case_files(
         disturb.make_disturbance_cases(nominal, 3, 12), tmp_path / "c", "glide"
     )
     assert [p.name for p in first] == ["glide_0001.csv", "glide_0002.csv", "glide_0003.csv"]
@@ -481,7 +482,7 @@ def test_each_file_header_records_how_it_was_made(tmp_path):
         nominal, 2, 21, intensity="light", airspeed_m_s=12.0, altitude_m=40.0, washout_s=0.8,
         response_hz=1.25,
     )  # fmt: skip
-    paths = disturb.write_disturbance_cases(cases, tmp_path, "glide")
+    paths = write_case_files(cases, tmp_path, "glide")
     s = dryden.dryden_settings(40.0, 12.0, intensity="light")
     for index, (case, path) in enumerate(zip(cases, paths, strict=True), start=1):
         h = header(path)

@@ -53,7 +53,16 @@ def _write_or_print(text: str, out: Path | None) -> None:
     if out is None:
         sys.stdout.write(text if text.endswith("\n") else text + "\n")
     else:
-        _guarded(lambda: out.write_text(text if text.endswith("\n") else text + "\n"))
+        from reachgate.render.files import write_text
+
+        _guarded(lambda: write_text(out, text))
+
+
+def _refuse_overwriting_inputs(outputs: dict, inputs: dict) -> None:
+    """Exit 2 when an output option names an input file (or two outputs one file)."""
+    from reachgate.render.files import refuse_overwriting_inputs
+
+    _guarded(lambda: refuse_overwriting_inputs(outputs, inputs))
 
 
 # --- commands are registered below, one section each --------------------------------------
@@ -133,6 +142,10 @@ def check_command(
     from reachgate.model.trajectory import load_trajectory
     from reachgate.render.check_report import render, write_joints
 
+    _refuse_overwriting_inputs(
+        {"--out": out, "--joints-out": joints_out, "--plot": plot},
+        {"robot file": robot, "trajectory": trajectory},
+    )
     settings = _guarded(
         lambda: settings_from_options(place, rail, rail_at, rail_bandwidth, lag, lag_tol)
     )
@@ -193,10 +206,18 @@ def perturb_command(
     out: Annotated[
         Path | None, typer.Option("--out", help="Folder for the cases (default NOMINAL_cases).")
     ] = None,
+    replace: Annotated[
+        bool,
+        typer.Option(
+            "--replace",
+            help="Remove the cases perturb wrote in --out with other settings, then write.",
+        ),
+    ] = False,
 ) -> None:
     """Write disturbance cases of a nominal path: Dryden turbulence (MIL-F-8785C), for a scan."""
     from reachgate.model.trajectory import load_trajectory
-    from reachgate.motion.disturb import make_disturbance_cases, write_disturbance_cases
+    from reachgate.motion.disturb import make_disturbance_cases
+    from reachgate.render.cases import write_case_files
 
     if intensity is None and sigma is None:
         intensity = "moderate"
@@ -209,7 +230,9 @@ def perturb_command(
         )
     )  # fmt: skip
     out_dir = out if out is not None else nominal.parent / f"{nominal.stem}_cases"
-    files = _guarded(lambda: write_disturbance_cases(cases, out_dir, nominal.stem))
+    files = _guarded(
+        lambda: write_case_files(cases, out_dir, nominal.stem, replace=replace, inputs=(nominal,))
+    )
     print(f"wrote {len(files)} disturbance cases to {out_dir}: {files[0].name} .. {files[-1].name}")
 
 
@@ -258,6 +281,7 @@ def envelope_command(
     cell_T_pose = None if pose is None else _guarded(lambda: parse_pose(pose))
     if plot is not None and plot.suffix.lower() != ".png":
         _fail_bad_input(f"--plot: {plot}: the picture is written as PNG, name it *.png")
+    _refuse_overwriting_inputs({"--out": out, "--plot": plot}, {"robot file": robot})
     model = _guarded(lambda: load_robot(robot))
     result = _guarded(
         lambda: envelope(
@@ -330,6 +354,14 @@ def scan_command(
     from reachgate.batch.scan import load_summary, scan
     from reachgate.render.scan_report import ProgressBar, render_summary
 
+    _refuse_overwriting_inputs(
+        {"--out": out},
+        {
+            "robot file": robot,
+            "results store": store,
+            **{f"case {case}": case for case in cases or () if Path(case).is_file()},
+        },
+    )
     if report:
         if store is None:
             _fail_bad_input("--report reads a results store: give --store FILE")

@@ -14,6 +14,7 @@ from __future__ import annotations
 import math
 import sys
 import warnings
+from collections.abc import Iterator
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import NoReturn
@@ -610,25 +611,35 @@ def write_trajectory(
     Values are written as the shortest decimal that reads back to the same float64 (Python's
     repr), so write -> load gives identical arrays.
     """
+    _write_csv(Path(path), trajectory_csv_chunks(trajectory, comments))
+
+
+def trajectory_csv_chunks(trajectory: Trajectory, comments: tuple[str, ...] = ()) -> Iterator[str]:
+    """The text write_trajectory writes, in pieces of bounded size (for writers of their own)."""
     table = np.column_stack([trajectory.t_s, trajectory.scenario_p_m, trajectory.scenario_q_wxyz])
-    _write_csv(Path(path), WRITTEN_COLUMNS, table, comments)
+    return _csv_chunks(WRITTEN_COLUMNS, table, comments)
 
 
-def _write_csv(
-    path: Path, header: tuple[str, ...], table: np.ndarray, comments: tuple[str, ...]
-) -> None:
+def _csv_chunks(
+    header: tuple[str, ...], table: np.ndarray, comments: tuple[str, ...]
+) -> Iterator[str]:
     """Comment lines, the header, then (N, C) values as their shortest round-trip decimals."""
     row_format = ",".join(["%r"] * table.shape[1]) + "\n"
+    for comment in comments:
+        for line in str(comment).splitlines() or [""]:
+            yield f"# {line}\n"
+    yield ",".join(header) + "\n"
+    for start in range(0, table.shape[0], _WRITE_BLOCK_ROWS):
+        block = table[start : start + _WRITE_BLOCK_ROWS]
+        # tolist() gives Python floats, whose repr is the shortest round-trip form.
+        yield (row_format * block.shape[0]) % tuple(block.ravel().tolist())
+
+
+def _write_csv(path: Path, chunks: Iterator[str]) -> None:
     try:
         with path.open("w", encoding="utf-8", newline="\n") as handle:
-            for comment in comments:
-                for line in str(comment).splitlines() or [""]:
-                    handle.write(f"# {line}\n")
-            handle.write(",".join(header) + "\n")
-            for start in range(0, table.shape[0], _WRITE_BLOCK_ROWS):
-                block = table[start : start + _WRITE_BLOCK_ROWS]
-                # tolist() gives Python floats, whose repr is the shortest round-trip form.
-                handle.write((row_format * block.shape[0]) % tuple(block.ravel().tolist()))
+            for chunk in chunks:
+                handle.write(chunk)
     except OSError as error:
         raise ReachgateError(f"{path}: cannot write ({error.strerror or error})") from None
 
@@ -860,4 +871,4 @@ def write_scenario(path: str | Path, scenario: Scenario, comments: tuple[str, ..
     for body, trajectory in scenario.bodies.items():
         header += [f"{body}{BODY_SEPARATOR}{c}" for c in WRITTEN_COLUMNS[1:]]
         parts += [trajectory.scenario_p_m, trajectory.scenario_q_wxyz]
-    _write_csv(Path(path), tuple(header), np.column_stack(parts), comments)
+    _write_csv(Path(path), _csv_chunks(tuple(header), np.column_stack(parts), comments))

@@ -34,14 +34,13 @@ from __future__ import annotations
 import math
 import numbers
 from dataclasses import dataclass
-from pathlib import Path
 
 import numpy as np
 from scipy.linalg import solve_continuous_lyapunov
 from scipy.signal import ss2tf
 
 from reachgate.errors import ReachgateError
-from reachgate.model.trajectory import Trajectory, write_trajectory
+from reachgate.model.trajectory import Trajectory
 from reachgate.motion.dryden import (
     DEFAULT_AIRSPEED_M_S,
     DEFAULT_ALTITUDE_M,
@@ -334,18 +333,3 @@ def make_disturbance_cases(
         settings = {**common, "case": index, "case_seed": case_seed}
         cases.append(DisturbanceCase(trajectory, case_seed, settings))
     return cases
-
-
-def write_disturbance_cases(
-    cases: list[DisturbanceCase], out_dir: str | Path, stem: str
-) -> list[Path]:
-    """Write cases as ``out_dir/stem_0001.csv`` ... (numbered by case), header comments first."""
-    out_dir = Path(out_dir)
-    out_dir.mkdir(parents=True, exist_ok=True)
-    width = max(4, len(str(max((c.settings["case"] for c in cases), default=1))))
-    paths = []
-    for case in cases:
-        path = out_dir / f"{stem}_{case.settings['case']:0{width}d}.csv"
-        write_trajectory(path, case.trajectory, comments=case.header_lines)
-        paths.append(path)
-    return paths

@@ -14,6 +14,7 @@ import numpy as np
 
 from reachgate.checking.intervals import ROW_KEYS, Severity
 from reachgate.checking.pipeline import Report
+from reachgate.render.files import atomic_output
 
 SAFETY_CAUTIONS = (
     "A pass here is not a safety validation of the cell or the path.",
@@ -267,7 +268,7 @@ def write_joints(report: Report, path: Path, robot_axes) -> None:
             columns.append(f"{axis.name}_m")
             scaled.append(q[:, i])
     data = np.column_stack(scaled)
-    with open(path, "w", encoding="utf-8", newline="\n") as handle:
+    with atomic_output(path) as handle:
         handle.write(f"# solved joint trajectory of {report.trajectory} on {report.robot}\n")
         handle.write(",".join(columns) + "\n")
         np.savetxt(handle, data, delimiter=",", fmt="%.17g")

@@ -18,6 +18,7 @@ from reachgate.checking.pipeline import SINGULARITY_NEAR_FACTOR, UNTRUSTED_NEIGH
 from reachgate.errors import ReachgateError
 from reachgate.kinematics.chain import arm_manipulability
 from reachgate.model.robot import Robot
+from reachgate.render.files import atomic_output
 
 #: Figure size and resolution of the check picture: 1200 × 900 pixels.
 REPORT_SIZE_IN = (12.0, 9.0)
@@ -71,7 +72,8 @@ def _new_figure(size_in: tuple[float, float]):
 
 def _save(figure, path: Path) -> None:
     # No bbox_inches="tight": the file keeps the stated pixel size.
-    figure.savefig(path, format="png", dpi=DPI)
+    with atomic_output(path, binary=True) as handle:
+        figure.savefig(handle, format="png", dpi=DPI)
 
 
 def decimate(t: np.ndarray, y: np.ndarray, max_samples: int = MAX_DRAWN_SAMPLES):
