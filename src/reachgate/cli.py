@@ -400,6 +400,46 @@ def scan_command(
     raise typer.Exit(EXIT_PASS if summary.passed else EXIT_FAIL)
 
 
+# --- delay ---
+
+
+class DelayFormat(str, Enum):
+    table = "table"
+    json = "json"
+
+
+@app.command("delay")
+def delay_command(
+    commanded: Annotated[
+        Path, typer.Argument(help="Commanded log: poses (as a trajectory) or axis values.")
+    ],
+    measured: Annotated[Path, typer.Argument(help="What the rig reported back, same kind.")],
+    fmt: Annotated[
+        DelayFormat, typer.Option("--format", help="Output format.")
+    ] = DelayFormat.table,
+    out: Annotated[Path | None, typer.Option("--out", help="Write the estimate here.")] = None,
+    plot: Annotated[
+        Path | None, typer.Option("--plot", help="Write gain and phase against frequency (PNG).")
+    ] = None,
+) -> None:
+    """Estimate the rig's loop delay and tracking bandwidth from a run log; the --lag to use."""
+    from reachgate.motion.delay import estimate_delay_from_files
+    from reachgate.render.delay_report import render_delay
+
+    for given in (out, plot):
+        if given is not None and given.resolve() in (commanded.resolve(), measured.resolve()):
+            _fail_bad_input(f"{given}: is an input; name another file for the output")
+    if plot is not None and plot.suffix.lower() != ".png":
+        _fail_bad_input(f"--plot: {plot}: the picture is written as PNG, name it *.png")
+    estimate = _guarded(lambda: estimate_delay_from_files(commanded, measured))
+    _write_or_print(render_delay(estimate, fmt.value), out)
+    if plot is not None:
+        from reachgate.render.pictures import plot_delay
+
+        _guarded(lambda: plot_delay(estimate, plot))
+    raise typer.Exit(EXIT_PASS)
+
+
 #: Exit code of an interrupted scan: 128 + SIGINT, the shell's convention (common practice).
 EXIT_INTERRUPTED = 130
 

@@ -344,3 +344,64 @@ def plot_envelope(result, path: str | Path) -> Path:
         ax.legend(handles=handles, loc="lower left", fontsize=9, framealpha=1.0)
     _save(figure, path)
     return path
+
+
+#: Figure size of the delay picture: 1000 × 750 pixels.
+DELAY_SIZE_IN = (10.0, 7.5)
+
+
+def plot_delay(estimate, path: str | Path) -> Path:
+    """Write the delay picture: gain (dB) and phase (deg) of the measured response against
+    frequency (log axis), the fitted model as a line, the bandwidth as a dotted line.
+
+    Bins in the fit are filled dots, the others (coherence below the floor, or above the
+    fitted band) hollow. DELAY_SIZE_IN at DPI. -> the path written.
+    """
+    from reachgate.motion.delay import model_phase_rad
+
+    path = _require_png(Path(path))
+    f = estimate.frequency_hz
+    with np.errstate(divide="ignore", invalid="ignore"):
+        gain_db = 20.0 * np.log10(np.abs(estimate.response))
+        model_db = 20.0 * np.log10(np.abs(estimate.model_response(f)))
+    phase = np.degrees(estimate.measured_phase_rad())
+    model_phase = np.degrees(model_phase_rad(f, estimate.delay_s, estimate.time_constant_s))
+    figure = _new_figure(DELAY_SIZE_IN)
+    gain_ax, phase_ax = figure.subplots(2, 1, sharex=True)
+    bandwidth = estimate.bandwidth_hz
+    figure.suptitle(
+        f"{estimate.measured} against {estimate.commanded}: delay "
+        f"{estimate.delay_s * 1000:.1f} ms, "
+        + (f"bandwidth {bandwidth:.2f} Hz" if bandwidth is not None else "no lag")
+        + f", --lag {estimate.effective_delay_s:.4g} s (effective)",
+        fontsize=11,
+    )
+    used = estimate.used
+    for ax, measured, model, label in (
+        (gain_ax, gain_db, model_db, "gain, dB"),
+        (phase_ax, phase, model_phase, "phase, deg"),
+    ):
+        ax.plot(f, model, color="black", linewidth=1.4, label="model: delay + first-order lag")
+        ax.plot(
+            f[used], measured[used], linestyle="none", marker="o", markersize=3,
+            color="0.3", label="measured, in the fit",
+        )  # fmt: skip
+        ax.plot(
+            f[~used], measured[~used], linestyle="none", marker="o", markersize=3,
+            markerfacecolor="white", markeredgecolor="0.3", label="measured, left out",
+        )  # fmt: skip
+        if bandwidth is not None:
+            ax.axvline(
+                bandwidth, color="black", linestyle=":", linewidth=1.0, label="bandwidth (-3 dB)"
+            )
+        ax.set_xscale("log")
+        ax.set_ylabel(label)
+        ax.grid(True, which="both", color="0.85", linewidth=0.5)
+    lowest = min(float(np.nanmin(model_db[used])), float(np.nanmin(gain_db[used])))
+    gain_ax.set_ylim(min(-20.0, lowest - 3.0), 6.0)
+    phase_ax.set_ylim(float(np.nanmin(model_phase[used])) * 1.2 - 10.0, 20.0)
+    phase_ax.set_xlabel("frequency, Hz")
+    phase_ax.set_xlim(f[0], min(f[-1], 2.0 * estimate.band_hz[1]))
+    gain_ax.legend(loc="lower left", fontsize=9, framealpha=1.0)
+    _save(figure, path)
+    return path
