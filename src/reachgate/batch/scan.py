@@ -29,6 +29,7 @@ from pathlib import Path
 from reachgate.batch.store import (
     CaseResult,
     CaseVerdict,
+    ScanLock,
     ScanSummary,
     Store,
     batch_counts,
@@ -507,6 +508,7 @@ def scan(
         if cluster:
             client = _connect_cluster(cluster)  # before the store: no run row if unreachable
             stack.callback(client.close)
+        stack.enter_context(ScanLock(store_file, f"started {_now()}"))
         store = stack.enter_context(Store(store_file))
         names = {str(c): case_name(c, store_file) for c in cases}
         stored = {} if fresh else store.fingerprints()

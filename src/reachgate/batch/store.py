@@ -5,14 +5,23 @@ Each case is written in one transaction in WAL mode, so an interrupted scan (Ctr
 kill -9) loses at most the cases in flight and leaves a consistent file. A case is known by
 its name (its path relative to the store's folder, or its absolute path when outside it);
 rechecking a case replaces its row.
+
+Trust: every open runs SQLite's own `quick_check` and refuses a damaged file; every case row
+carries the sha256 of its values and of its violation rows, checked whenever it is read, so a
+row changed behind the program's back is found instead of being reported. A store opened
+only to read (`scan --report`) is opened read-only and works in a read-only folder.
 """
 
 from __future__ import annotations
 
+import fcntl
 import hashlib
 import json
 import math
+import os
+import socket
 import sqlite3
+from collections.abc import Iterable
 from dataclasses import dataclass, field
 from enum import Enum
 from pathlib import Path
@@ -20,8 +29,9 @@ from pathlib import Path
 from reachgate.checking.intervals import Check, Severity, Violation
 from reachgate.errors import ReachgateError
 
-#: Bumped when the tables change; a store of another version is refused, not guessed at.
-SCHEMA_VERSION = 1
+#: Bumped when the tables change; a store of another version is refused, not guessed at
+#: (version 1 stores, which lack the row checksums, are brought to version 2 on open).
+SCHEMA_VERSION = 2
 #: How long a write waits for another process holding the store (a second scan), s.
 BUSY_TIMEOUT_S = 30.0
 #: Checks that have no fraction of a limit to rank by: the path cannot be followed at all.
@@ -63,7 +73,8 @@ CREATE TABLE IF NOT EXISTS cases (
     elapsed_s REAL NOT NULL,
     checked_at TEXT NOT NULL,
     worker TEXT NOT NULL,
-    run_id INTEGER NOT NULL REFERENCES runs (run_id)
+    run_id INTEGER NOT NULL REFERENCES runs (run_id),
+    row_sha256 TEXT
 );
 CREATE TABLE IF NOT EXISTS violations (
     case_id INTEGER NOT NULL REFERENCES cases (case_id),
@@ -242,32 +253,112 @@ def batch_counts(cases: tuple[CaseResult, ...]) -> dict[str, CheckCount]:
     return out
 
 
+#: Columns of table cases that a row checksum covers: every one but its id and the checksum.
+_CHECKED_COLUMNS = (
+    "case_name", "case_path", "case_sha256", "robot_name", "robot_sha256", "settings_json",
+    "verdict", "error", "samples", "duration_s", "worst_margin", "worst_margin_axis",
+    "worst_margin_limit", "slowdown", "counts_json", "margins_json", "tool_version",
+    "elapsed_s", "checked_at", "worker", "run_id",
+)  # fmt: skip
+_VIOLATION_COLUMNS = (
+    "check_name", "axis", "severity", "start_s", "end_s", "worst_s", "worst", "limit_value",
+    "unit", "excess_fraction",
+)  # fmt: skip
+
+
+def row_checksum(values: dict, violations: Iterable[tuple]) -> str:
+    """sha256 of a case row's values (_CHECKED_COLUMNS) and its violation rows, in order.
+
+    Floats enter by repr, which round-trips exactly through SQLite's 8-byte REAL.
+    """
+    text = json.dumps(
+        [[values[c] for c in _CHECKED_COLUMNS], [list(v) for v in violations]],
+        allow_nan=True,
+        separators=(",", ":"),
+    )
+    return hashlib.sha256(text.encode("utf-8")).hexdigest()
+
+
+def _stored_checksum(db: sqlite3.Connection, case_id: int) -> str:
+    """row_checksum of one case as it reads back from the store."""
+    columns = ", ".join(_CHECKED_COLUMNS)
+    values = dict(
+        zip(
+            _CHECKED_COLUMNS,
+            db.execute(f"SELECT {columns} FROM cases WHERE case_id = ?", (case_id,)).fetchone(),
+            strict=True,
+        )
+    )
+    children = db.execute(
+        f"SELECT {', '.join(_VIOLATION_COLUMNS)} FROM violations WHERE case_id = ? ORDER BY seq",
+        (case_id,),
+    ).fetchall()
+    return row_checksum(values, children)
+
+
+def _damaged(path: Path, detail: str) -> ReachgateError:
+    detail = " ".join(detail.split())  # one line, whatever SQLite put in its message
+    return ReachgateError(
+        f"{path}: the results store is damaged ({detail}); keep it aside for inspection and "
+        "scan again into a new --store (or restore a copy)"
+    )
+
+
 class Store:
-    """An open results store. Use as a context manager; every write is one transaction."""
+    """An open results store. Use as a context manager; every write is one transaction.
+
+    create=False opens an existing store read-only (nothing is written, not even the
+    checksums a version 1 store lacks), which also works on a read-only folder or disk.
+    """
 
     def __init__(self, path: Path, create: bool = True) -> None:
         self.path = Path(path)
+        self.read_only = not create
         if not create and not self.path.is_file():
             raise ReachgateError(f"{self.path}: no such results store")
         try:
             if create:
                 self.path.parent.mkdir(parents=True, exist_ok=True)
-            self.db = sqlite3.connect(self.path, timeout=BUSY_TIMEOUT_S, isolation_level=None)
-            self.db.execute("PRAGMA journal_mode=WAL")
-            # NORMAL in WAL mode: committed cases survive a killed process; never corrupts.
-            self.db.execute("PRAGMA synchronous=NORMAL")
+                self.db = sqlite3.connect(self.path, timeout=BUSY_TIMEOUT_S, isolation_level=None)
+                self.db.execute("PRAGMA journal_mode=WAL")
+                # NORMAL in WAL mode: committed cases survive a killed process; never corrupts.
+                self.db.execute("PRAGMA synchronous=NORMAL")
+            else:
+                self.db = self._connect_read_only()
+            self._verify_file()
             self._prepare()
         except sqlite3.DatabaseError as error:
-            raise ReachgateError(f"{self.path}: not a usable results store ({error})") from None
+            if "not a database" in str(error):
+                raise ReachgateError(f"{self.path}: not a usable results store ({error})") from None
+            raise _damaged(self.path, f"SQLite: {error}") from None
         except OSError as error:
             raise ReachgateError(f"{self.path}: cannot open ({error.strerror})") from None
+
+    def _connect_read_only(self) -> sqlite3.Connection:
+        """mode=ro shares the store with a running scan; immutable=1 is the fallback for a
+        read-only folder or disk, where SQLite cannot create the WAL index beside the file."""
+        uri = self.path.resolve().as_uri()
+        try:
+            db = sqlite3.connect(f"{uri}?mode=ro", uri=True, timeout=BUSY_TIMEOUT_S)
+            db.execute("SELECT count(*) FROM sqlite_master").fetchone()
+            return db
+        except sqlite3.OperationalError:
+            return sqlite3.connect(f"{uri}?immutable=1", uri=True)
+
+    def _verify_file(self) -> None:
+        """SQLite's own page and index check; a damaged store is refused, never read."""
+        problems = [r[0] for r in self.db.execute("PRAGMA quick_check(1)")]
+        if problems != ["ok"]:
+            raise _damaged(self.path, "SQLite quick_check: " + " ".join(problems[0].split()))
 
     def _prepare(self) -> None:
         tables = {r[0] for r in self.db.execute("SELECT name FROM sqlite_master")}
         if "meta" in tables:
             row = self.db.execute("SELECT value FROM meta WHERE key='schema_version'").fetchone()
-            if row is None or int(row[0]) != SCHEMA_VERSION:
-                found = None if row is None else row[0]
+            found = None if row is None else row[0]
+            if found == "1" and not self.read_only:
+                self._upgrade_from_1()
+            elif found not in ("1", str(SCHEMA_VERSION)):
                 raise ReachgateError(
                     f"{self.path}: store schema version {found}, this program writes "
                     f"{SCHEMA_VERSION}; use another --store"
@@ -275,12 +366,31 @@ class Store:
             return
         if tables:
             raise ReachgateError(f"{self.path}: an SQLite file, but not a reachgate results store")
+        if self.read_only:
+            raise ReachgateError(f"{self.path}: an empty file, not a reachgate results store")
         self.db.executescript(
             "BEGIN IMMEDIATE;"
             + _SCHEMA
             + f"INSERT OR IGNORE INTO meta VALUES ('schema_version', '{SCHEMA_VERSION}');"
             + "COMMIT;"
         )
+
+    def _upgrade_from_1(self) -> None:
+        """Version 1 had no row checksums: add the column and seal the rows as they are."""
+        db = self.db
+        db.execute("BEGIN IMMEDIATE")
+        try:
+            db.execute("ALTER TABLE cases ADD COLUMN row_sha256 TEXT")
+            for (case_id,) in db.execute("SELECT case_id FROM cases").fetchall():
+                db.execute(
+                    "UPDATE cases SET row_sha256 = ? WHERE case_id = ?",
+                    (_stored_checksum(db, case_id), case_id),
+                )
+            db.execute("UPDATE meta SET value = ? WHERE key = 'schema_version'", (SCHEMA_VERSION,))
+            db.execute("COMMIT")
+        except BaseException:
+            db.execute("ROLLBACK")
+            raise
 
     def __enter__(self) -> Store:
         return self
@@ -291,59 +401,56 @@ class Store:
     def close(self) -> None:
         self.db.close()
 
+    def _write(self, statements) -> None:
+        """Run statements(db) in one transaction; a full disk or an I/O fault becomes one
+        clear ReachgateError, with every case committed before it kept."""
+        db = self.db
+        try:
+            db.execute("BEGIN IMMEDIATE")
+            try:
+                statements(db)
+                db.execute("COMMIT")
+            except BaseException:
+                if db.in_transaction:
+                    db.execute("ROLLBACK")
+                raise
+        except sqlite3.OperationalError as error:
+            text = str(error)
+            if "full" in text:
+                raise ReachgateError(
+                    f"{self.path}: the disk is full (SQLite: {text}); every case finished "
+                    "before is kept: free some space and run the same command to resume"
+                ) from None
+            raise ReachgateError(f"{self.path}: cannot write the results store ({text})") from None
+        except sqlite3.DatabaseError as error:
+            raise _damaged(self.path, f"SQLite: {error}") from None
+
     # -- runs -------------------------------------------------------------------------------
 
     def start_run(self, **fields) -> int:
         keys = ", ".join(fields)
         marks = ", ".join("?" for _ in fields)
-        cur = self.db.execute(f"INSERT INTO runs ({keys}) VALUES ({marks})", tuple(fields.values()))
-        return int(cur.lastrowid)
+        run_id: list[int] = []
+        self._write(
+            lambda db: run_id.append(
+                db.execute(
+                    f"INSERT INTO runs ({keys}) VALUES ({marks})", tuple(fields.values())
+                ).lastrowid
+            )
+        )
+        return int(run_id[0])
 
     def finish_run(self, run_id: int, finished_at: str) -> None:
-        self.db.execute("UPDATE runs SET finished_at = ? WHERE run_id = ?", (finished_at, run_id))
+        self._write(
+            lambda db: db.execute(
+                "UPDATE runs SET finished_at = ? WHERE run_id = ?", (finished_at, run_id)
+            )
+        )
 
     # -- cases ------------------------------------------------------------------------------
 
-    def fingerprints(self) -> dict[str, tuple[str | None, str, str, str]]:
-        """case name -> (case sha256, robot sha256, settings json, verdict) of stored rows."""
-        rows = self.db.execute(
-            "SELECT case_name, case_sha256, robot_sha256, settings_json, verdict FROM cases"
-        )
-        return {r[0]: (r[1], r[2], r[3], r[4]) for r in rows}
-
-    def write_case(self, row: dict, violations: list[tuple]) -> int:
-        """Replace the case's row and its violation rows in one transaction. -> case_id.
-
-        row: column -> value of table cases (without case_id); violations: tuples of
-        (check, axis, severity, start_s, end_s, worst_s, worst, limit, unit, excess_fraction).
-        """
-        keys = ", ".join(row)
-        marks = ", ".join("?" for _ in row)
-        db = self.db
-        db.execute("BEGIN IMMEDIATE")
-        try:
-            old = db.execute(
-                "SELECT case_id FROM cases WHERE case_name = ?", (row["case_name"],)
-            ).fetchone()
-            if old is not None:
-                db.execute("DELETE FROM violations WHERE case_id = ?", (old[0],))
-                db.execute("DELETE FROM cases WHERE case_id = ?", (old[0],))
-            cur = db.execute(f"INSERT INTO cases ({keys}) VALUES ({marks})", tuple(row.values()))
-            case_id = int(cur.lastrowid)
-            db.executemany(
-                "INSERT INTO violations (case_id, seq, check_name, axis, severity, start_s, "
-                "end_s, worst_s, worst, limit_value, unit, excess_fraction) "
-                "VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
-                [(case_id, i, *v) for i, v in enumerate(violations)],
-            )
-            db.execute("COMMIT")
-        except BaseException:
-            db.execute("ROLLBACK")
-            raise
-        return case_id
-
-    def results(self, names: list[str] | None = None) -> tuple[CaseResult, ...]:
-        """Stored cases (all, or those named), ranked worst first."""
+    def _raw_rows(self) -> Iterable[tuple[int, dict, list[tuple]]]:
+        """(case_id, column -> value, violation tuples in seq order) of every stored case."""
         db = self.db
         db.row_factory = sqlite3.Row
         try:
@@ -353,10 +460,83 @@ class Store:
                 children.setdefault(v["case_id"], []).append(v)
         finally:
             db.row_factory = None
+        for r in rows:
+            kids = children.get(r["case_id"], [])
+            yield r["case_id"], r, kids
+
+    def _verified(self) -> list[tuple[sqlite3.Row, list[sqlite3.Row]]]:
+        """Every case row with its violation rows, each checked against its checksum."""
+        out = []
+        try:
+            for _, row, kids in self._raw_rows():
+                stored = row["row_sha256"] if "row_sha256" in row.keys() else None
+                if stored is not None or not self.read_only:  # v1 read-only: nothing to check
+                    tuples = [tuple(k[c] for c in _VIOLATION_COLUMNS) for k in kids]
+                    if stored != row_checksum(row, tuples):
+                        raise _damaged(
+                            self.path,
+                            f"the stored row of case {row['case_name']!r} does not match its "
+                            "checksum: it was changed outside reachgate",
+                        )
+                out.append((row, kids))
+        except sqlite3.DatabaseError as error:
+            raise _damaged(self.path, f"SQLite: {error}") from None
+        return out
+
+    def fingerprints(self) -> dict[str, tuple[str | None, str, str, str]]:
+        """case name -> (case sha256, robot sha256, settings json, verdict) of stored rows
+        (every row checked against its checksum first, so a changed row is never resumed)."""
+        return {
+            r["case_name"]: (r["case_sha256"], r["robot_sha256"], r["settings_json"], r["verdict"])
+            for r, _ in self._verified()
+        }
+
+    def write_case(self, row: dict, violations: list[tuple]) -> int:
+        """Replace the case's row and its violation rows in one transaction. -> case_id.
+
+        row: column -> value of table cases (without case_id); violations: tuples of
+        (check, axis, severity, start_s, end_s, worst_s, worst, limit, unit, excess_fraction).
+        The checksum is taken from the values as SQLite stored them (column types applied).
+        """
+        keys = ", ".join(row)
+        marks = ", ".join("?" for _ in row)
+        case_id: list[int] = []
+
+        def statements(db) -> None:
+            old = db.execute(
+                "SELECT case_id FROM cases WHERE case_name = ?", (row["case_name"],)
+            ).fetchone()
+            if old is not None:
+                db.execute("DELETE FROM violations WHERE case_id = ?", (old[0],))
+                db.execute("DELETE FROM cases WHERE case_id = ?", (old[0],))
+            new_id = int(
+                db.execute(
+                    f"INSERT INTO cases ({keys}) VALUES ({marks})", tuple(row.values())
+                ).lastrowid
+            )
+            db.executemany(
+                "INSERT INTO violations (case_id, seq, check_name, axis, severity, start_s, "
+                "end_s, worst_s, worst, limit_value, unit, excess_fraction) "
+                "VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
+                [(new_id, i, *v) for i, v in enumerate(violations)],
+            )
+            db.execute(
+                "UPDATE cases SET row_sha256 = ? WHERE case_id = ?",
+                (_stored_checksum(db, new_id), new_id),
+            )
+            case_id.append(new_id)
+
+        self._write(statements)
+        return case_id[0]
+
+    def results(self, names: list[str] | None = None) -> tuple[CaseResult, ...]:
+        """Stored cases (all, or those named), ranked worst first, each checked against its
+        checksum."""
+        rows = self._verified()
         if names is not None:
             wanted = set(names)
-            rows = [r for r in rows if r["case_name"] in wanted]
-        return tuple(sorted((_case(r, children.get(r["case_id"], [])) for r in rows), key=rank_key))
+            rows = [(r, kids) for r, kids in rows if r["case_name"] in wanted]
+        return tuple(sorted((_case(r, kids) for r, kids in rows), key=rank_key))
 
 
 def _case(row: sqlite3.Row, children: list[sqlite3.Row]) -> CaseResult:
@@ -412,6 +592,50 @@ def _case(row: sqlite3.Row, children: list[sqlite3.Row]) -> CaseResult:
         run_id=row["run_id"],
         case_id=row["case_id"],
     )
+
+
+class ScanLock:
+    """One running scan per store: an exclusive lock on STORE.lock, held while the scan runs.
+
+    The lock is the kernel's (flock), so it dies with its process, kill -9 included; the
+    file's text only names the holder for the message. A second scan refuses to start.
+    (flock works on a local disk; on a network filesystem it may not: keep stores local.)
+    """
+
+    def __init__(self, store_path: Path, what: str) -> None:
+        self.path = Path(store_path).with_name(Path(store_path).name + ".lock")
+        self.what = what
+        self._file = None
+
+    def __enter__(self) -> ScanLock:
+        try:
+            self.path.parent.mkdir(parents=True, exist_ok=True)
+            handle = open(self.path, "a+", encoding="utf-8")
+        except OSError as error:
+            raise ReachgateError(
+                f"{self.path}: cannot create the scan lock ({error.strerror})"
+            ) from None
+        try:
+            fcntl.flock(handle, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except BlockingIOError:
+            handle.seek(0)
+            holder = handle.read().strip() or "another process"
+            handle.close()
+            raise ReachgateError(
+                f"{self.path.with_suffix('')}: another scan is running on this store "
+                f"({holder}); wait for it to end, or give another --store"
+            ) from None
+        handle.seek(0)
+        handle.truncate()
+        handle.write(f"pid {os.getpid()} on {socket.gethostname()}, {self.what}\n")
+        handle.flush()
+        self._file = handle
+        return self
+
+    def __exit__(self, *exc) -> None:
+        if self._file is not None:
+            self._file.close()  # closing releases the lock
+            self._file = None
 
 
 def load_summary(store_path: str | Path, *, robot_path: str | Path | None = None) -> ScanSummary:
