@@ -156,5 +156,5 @@ def test_output_onto_an_input_is_refused_and_the_input_kept(tmp_path):
     result = CliRunner().invoke(
         app, ["delay", str(commanded), str(measured), "--out", str(measured)]
     )
-    assert result.exit_code == 2 and "is an input" in result.output
+    assert result.exit_code == 2 and "an input of this command" in result.output
     assert measured.read_bytes() == before

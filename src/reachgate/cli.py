@@ -426,9 +426,9 @@ def delay_command(
     from reachgate.motion.delay import estimate_delay_from_files
     from reachgate.render.delay_report import render_delay
 
-    for given in (out, plot):
-        if given is not None and given.resolve() in (commanded.resolve(), measured.resolve()):
-            _fail_bad_input(f"{given}: is an input; name another file for the output")
+    _refuse_overwriting_inputs(
+        {"--out": out, "--plot": plot}, {"commanded log": commanded, "measured log": measured}
+    )
     if plot is not None and plot.suffix.lower() != ".png":
         _fail_bad_input(f"--plot: {plot}: the picture is written as PNG, name it *.png")
     estimate = _guarded(lambda: estimate_delay_from_files(commanded, measured))
