@@ -113,7 +113,7 @@ def test_lag_check_reports_tracking_error():
         "json",
     )
     report = json.loads(result.output)
-    lag_rows = [v for v in report["violations"] if v["check"] == "lag"]
+    lag_rows = [v for v in report["violations"] if v["check"] == "lag" and v["axis"] == "tcp"]
     assert lag_rows and lag_rows[0]["unit"] == "m" and lag_rows[0]["limit"] == pytest.approx(0.005)
 
 

@@ -5,6 +5,7 @@ Every command turns a ReachgateError into one line on stderr and exit code 2.
 
 from __future__ import annotations
 
+import math
 import os
 import sys
 from collections.abc import Callable
@@ -14,11 +15,13 @@ from typing import Annotated, TypeVar
 
 import typer
 
+from reachgate.checking.lag import DEFAULT_LAG_TOL_RAD
 from reachgate.checking.pipeline import DEFAULT_LAG_TOL_M
 from reachgate.checking.rail import DEFAULT_BANDWIDTH_HZ
 from reachgate.errors import ReachgateError
 
 DEFAULT_LAG_TOL_MM = DEFAULT_LAG_TOL_M * 1000.0
+DEFAULT_LAG_TOL_DEG = round(math.degrees(DEFAULT_LAG_TOL_RAD), 9)
 
 app = typer.Typer(
     add_completion=False,
@@ -96,8 +99,37 @@ LagTolOption = Annotated[
 ]
 
 
-def settings_from_options(place, rail, rail_at, rail_bandwidth, lag, lag_tol):
+class PredictMode(str, Enum):
+    none = "none"
+    linear = "linear"
+    quadratic = "quadratic"
+
+
+LagTolDegOption = Annotated[
+    float,
+    typer.Option("--lag-tol-deg", help="TCP rotation error the delay may cause, deg."),
+]
+PredictOption = Annotated[
+    PredictMode,
+    typer.Option(
+        "--predict",
+        help="The rig's delay compensation: extrapolate the command over --lag (causally).",
+    ),
+]
+
+
+def settings_from_options(
+    place,
+    rail,
+    rail_at,
+    rail_bandwidth,
+    lag,
+    lag_tol,
+    lag_tol_deg=DEFAULT_LAG_TOL_DEG,
+    predict=PredictMode.none,
+):
     """CheckSettings from the shared check/scan options (SI inside)."""
+    from reachgate.checking.lag import Prediction
     from reachgate.checking.pipeline import CheckSettings, Placement
     from reachgate.checking.rail import RailPolicy
 
@@ -108,6 +140,8 @@ def settings_from_options(place, rail, rail_at, rail_bandwidth, lag, lag_tol):
         rail_bandwidth_hz=rail_bandwidth,
         lag_s=lag,
         lag_tol_m=lag_tol / 1000.0,
+        lag_tol_rad=math.radians(lag_tol_deg),
+        predict=Prediction(predict.value),
     )
 
 
@@ -124,6 +158,8 @@ def check_command(
     rail_bandwidth: BandwidthOption = DEFAULT_BANDWIDTH_HZ,
     lag: LagOption = None,
     lag_tol: LagTolOption = DEFAULT_LAG_TOL_MM,
+    lag_tol_deg: LagTolDegOption = DEFAULT_LAG_TOL_DEG,
+    predict: PredictOption = PredictMode.none,
     fmt: Annotated[
         OutputFormat, typer.Option("--format", help="Report format.")
     ] = OutputFormat.table,
@@ -147,7 +183,9 @@ def check_command(
         {"robot file": robot, "trajectory": trajectory},
     )
     settings = _guarded(
-        lambda: settings_from_options(place, rail, rail_at, rail_bandwidth, lag, lag_tol)
+        lambda: settings_from_options(
+            place, rail, rail_at, rail_bandwidth, lag, lag_tol, lag_tol_deg, predict
+        )
     )
     model = _guarded(lambda: load_robot(robot))
     path = _guarded(lambda: load_trajectory(trajectory))
@@ -322,6 +360,8 @@ def scan_command(
     rail_bandwidth: BandwidthOption = DEFAULT_BANDWIDTH_HZ,
     lag: LagOption = None,
     lag_tol: LagTolOption = DEFAULT_LAG_TOL_MM,
+    lag_tol_deg: LagTolDegOption = DEFAULT_LAG_TOL_DEG,
+    predict: PredictOption = PredictMode.none,
     store: Annotated[
         Path | None,
         typer.Option(
@@ -372,7 +412,9 @@ def scan_command(
         if robot is None or not cases:
             _fail_bad_input("scan needs ROBOT and at least one case (file, folder or glob)")
         settings = _guarded(
-            lambda: settings_from_options(place, rail, rail_at, rail_bandwidth, lag, lag_tol)
+            lambda: settings_from_options(
+                place, rail, rail_at, rail_bandwidth, lag, lag_tol, lag_tol_deg, predict
+            )
         )
         bar = nullcontext(None) if quiet or not sys.stderr.isatty() else ProgressBar()
         try:

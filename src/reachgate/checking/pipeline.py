@@ -23,6 +23,7 @@ from reachgate.checking.intervals import (
     intervals,
     sort_rows,
 )
+from reachgate.checking.lag import DEFAULT_LAG_TOL_RAD, Prediction, lag_errors
 from reachgate.checking.rail import DEFAULT_BANDWIDTH_HZ, RailPolicy, rail_positions
 from reachgate.errors import ReachgateError
 from reachgate.kinematics.chain import arm_manipulability
@@ -91,12 +92,18 @@ class CheckSettings:
     rail_bandwidth_hz: float = DEFAULT_BANDWIDTH_HZ
     lag_s: float | None = None
     lag_tol_m: float = DEFAULT_LAG_TOL_M
+    lag_tol_rad: float = DEFAULT_LAG_TOL_RAD
+    predict: Prediction = Prediction.NONE
 
     def __post_init__(self) -> None:
         if self.lag_s is not None and not (math.isfinite(self.lag_s) and self.lag_s > 0):
             raise ReachgateError(f"--lag: must be a positive time in s, got {self.lag_s!r}")
         if not (math.isfinite(self.lag_tol_m) and self.lag_tol_m > 0):
             raise ReachgateError(f"--lag-tol: must be a positive distance, got {self.lag_tol_m!r}")
+        if not (math.isfinite(self.lag_tol_rad) and self.lag_tol_rad > 0):
+            raise ReachgateError(
+                f"--lag-tol-deg: must be a positive angle, got {math.degrees(self.lag_tol_rad)!r}"
+            )
 
     def as_dict(self) -> dict:
         return {
@@ -107,6 +114,8 @@ class CheckSettings:
             "rail_bandwidth_hz": self.rail_bandwidth_hz,
             "lag_s": self.lag_s,
             "lag_tol_m": self.lag_tol_m,
+            "lag_tol_rad": self.lag_tol_rad,
+            "predict": self.predict.value,
         }
 
 
@@ -269,19 +278,7 @@ def _check_once(robot: Robot, trajectory: Trajectory, settings: CheckSettings) -
             unit="rad",
         )
     if settings.lag_s is not None:
-        # |p(t) - p(t - lag)| is the same in the scenario frame as in the cell (rigid placement)
-        delayed_t, p = t - settings.lag_s, trajectory.scenario_p_m
-        error_m = np.sqrt(sum((p[:, k] - np.interp(delayed_t, t, p[:, k])) ** 2 for k in range(3)))
-        rows += intervals(
-            t,
-            error_m - settings.lag_tol_m,
-            thresholds.rate_margin_fraction * settings.lag_tol_m,
-            check=Check.LAG,
-            axis="tcp",
-            worst_value=error_m,
-            limit_value=settings.lag_tol_m,
-            unit="m",
-        )
+        rows += _lag_rows(trajectory, settings, thresholds.rate_margin_fraction)
 
     rows = sort_rows(rows)
     failing = [r for r in rows if r.severity is Severity.VIOLATION]
@@ -305,6 +302,35 @@ def _check_once(robot: Robot, trajectory: Trajectory, settings: CheckSettings) -
         t_s=t,
         solution=solution,
     )
+
+
+def _lag_rows(trajectory: Trajectory, settings: CheckSettings, near_fraction: float):
+    """`lag` rows: axis `tcp` for the position error, `tcp-rotation` for the angle, each
+    against its tolerance, after the rig's prediction (checking.lag). The errors are the same
+    in the scenario frame as in the cell (a rigid placement keeps distances and angles)."""
+    errors = lag_errors(
+        trajectory.t_s,
+        trajectory.scenario_p_m,
+        trajectory.scenario_q_wxyz,
+        settings.lag_s,
+        settings.predict,
+    )
+    rows = []
+    for axis, error, tol, unit in (
+        ("tcp", errors.position_m, settings.lag_tol_m, "m"),
+        ("tcp-rotation", errors.angle_rad, settings.lag_tol_rad, "rad"),
+    ):
+        rows += intervals(
+            trajectory.t_s,
+            error - tol,
+            near_fraction * tol,
+            check=Check.LAG,
+            axis=axis,
+            worst_value=error,
+            limit_value=tol,
+            unit=unit,
+        )
+    return rows
 
 
 def _rate_rows(robot: Robot, t: np.ndarray, q: np.ndarray, trusted: np.ndarray):

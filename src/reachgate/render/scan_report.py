@@ -5,6 +5,7 @@ from __future__ import annotations
 import csv
 import io
 import json
+import math
 
 from reachgate.batch.scan import ScanProgress
 from reachgate.batch.store import CaseResult, CaseVerdict, ScanSummary
@@ -27,6 +28,10 @@ def settings_text(settings: dict) -> str:
         rail += f" at {settings['rail_at_m']:g} m"
     lag = "off" if settings["lag_s"] is None else f"{settings['lag_s']:g} s"
     tol = f"{1000 * settings['lag_tol_m']:g} mm"
+    if settings.get("lag_tol_rad") is not None:
+        tol += f", {math.degrees(settings['lag_tol_rad']):g} deg"
+    if settings.get("predict", "none") != "none":
+        lag += f" with {settings['predict']} prediction"
     return f"place {place} (m, deg); rail {rail}; lag {lag}, tolerance {tol}"
 
 
