@@ -18,7 +18,7 @@ import typer
 from reachgate.checking.lag import DEFAULT_LAG_TOL_RAD
 from reachgate.checking.pipeline import DEFAULT_LAG_TOL_M
 from reachgate.checking.rail import DEFAULT_BANDWIDTH_HZ
-from reachgate.errors import ReachgateError
+from reachgate.errors import ClusterLostError, ReachgateError
 
 DEFAULT_LAG_TOL_MM = DEFAULT_LAG_TOL_M * 1000.0
 DEFAULT_LAG_TOL_DEG = round(math.degrees(DEFAULT_LAG_TOL_RAD), 9)
@@ -45,6 +45,8 @@ def _guarded(call: Callable[[], T]) -> T:
     """Run a library call; bad input becomes one stderr line and exit code 2."""
     try:
         return call()
+    except ClusterLostError:
+        raise  # its own exit code, set by the scan command
     except ReachgateError as error:
         _fail_bad_input(str(error))
     except OSError as error:  # unreadable output paths and the like
@@ -416,6 +418,8 @@ def scan_command(
                 place, rail, rail_at, rail_bandwidth, lag, lag_tol, lag_tol_deg, predict
             )
         )
+        if cluster:
+            _quiet_dask_logging()
         bar = nullcontext(None) if quiet or not sys.stderr.isatty() else ProgressBar()
         try:
             with bar as show:
@@ -438,6 +442,9 @@ def scan_command(
                 file=sys.stderr,
             )
             raise typer.Exit(EXIT_INTERRUPTED) from None
+        except ClusterLostError as error:
+            print(f"reachgate: error: {error}", file=sys.stderr)
+            raise typer.Exit(EXIT_CLUSTER_LOST) from None
     _write_or_print(render_summary(summary, fmt.value), out)
     raise typer.Exit(EXIT_PASS if summary.passed else EXIT_FAIL)
 
@@ -482,8 +489,22 @@ def delay_command(
     raise typer.Exit(EXIT_PASS)
 
 
+def _quiet_dask_logging() -> None:
+    """Keep distributed's log lines (reconnect attempts, a lost scheduler's tracebacks) off
+    the terminal: the scan says what happened in one line of its own."""
+    import logging
+
+    import distributed  # noqa: F401  (sets up its loggers, which are then turned down)
+
+    for name in [*logging.root.manager.loggerDict, "distributed"]:
+        if name == "distributed" or name.startswith("distributed."):
+            logging.getLogger(name).setLevel(logging.CRITICAL)
+
+
 #: Exit code of an interrupted scan: 128 + SIGINT, the shell's convention (common practice).
 EXIT_INTERRUPTED = 130
+#: Exit code of a scan whose Dask scheduler went away or kept no worker (cases kept).
+EXIT_CLUSTER_LOST = 3
 
 
 def main() -> None:

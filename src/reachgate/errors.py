@@ -8,3 +8,8 @@ class ReachgateError(Exception):
 
     The CLI prints ``str(error)`` on stderr and exits with code 2, never a traceback.
     """
+
+
+class ClusterLostError(ReachgateError):
+    """A scan's Dask scheduler went away, or kept no worker for too long. The cases finished
+    before are in the store; the CLI exits with its own code (3), not 2."""

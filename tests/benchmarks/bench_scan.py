@@ -2,7 +2,7 @@
 
 Not a test (pytest collects test_*.py only). Run:
 
-    python tests/benchmarks/bench_scan.py [--cases 1000] [--reference 20] [--workers N]
+    python tests/benchmarks/bench_scan.py [--cases 1000] [--reference 20] [--workers N] [--dask]
 
 Writes a batch of landing-approach cases (60 s at 250 Hz, ±10 % time jitter, a gust burst
 whose size is drawn per case so that some pass and some fail) into a temporary folder, then:
@@ -12,7 +12,9 @@ whose size is drawn per case so that some pass and some fail) into a temporary f
    case, on the first --reference cases, as many at a time as scan has workers (what a shell
    loop with `xargs -P N` does); its rate is scaled to the whole batch.
 The reference verdicts are compared with the scan's for the same cases.
-Target (issue): the 1000 cases in under 60 s on 2 cores.
+3. with --dask: the same scan on a Dask LocalCluster of as many one-thread worker processes,
+   into a fresh store (`--cluster` path), beside the local workers' time.
+Targets (issues): the 1000 cases in under 60 s on 2 cores; Dask at most 1.2x local.
 """
 
 from __future__ import annotations
@@ -101,6 +103,7 @@ def main() -> None:
     parser.add_argument("--cases", type=int, default=1000)
     parser.add_argument("--reference", type=int, default=20)
     parser.add_argument("--workers", type=int, default=os.cpu_count())
+    parser.add_argument("--dask", action="store_true", help="also scan on a local Dask cluster")
     args = parser.parse_args()
 
     from reachgate import CheckSettings, RailPolicy
@@ -133,6 +136,26 @@ def main() -> None:
             f"{tally['fail']} fail, {tally['error']} error; "
             f"mean time in a worker {1000 * busy_s / len(summary.cases):.0f} ms per case)"
         )
+
+        if args.dask:
+            from dask.distributed import LocalCluster
+
+            with LocalCluster(
+                n_workers=args.workers, threads_per_worker=1, processes=True,
+                dashboard_address=None, env={"OPENBLAS_NUM_THREADS": "1", "OMP_NUM_THREADS": "1"},
+            ) as cluster:  # fmt: skip
+                started = time.perf_counter()
+                on_dask = scan(
+                    ROBOT, [folder], settings, store_path=Path(tmp) / "dask.sqlite",
+                    cluster=cluster.scheduler_address,
+                )  # fmt: skip
+                dask_s = time.perf_counter() - started
+            same = [c.verdict for c in on_dask.cases] == [c.verdict for c in summary.cases]
+            print(
+                f"dask: {len(on_dask.cases)} cases in {dask_s:.1f} s on a LocalCluster of "
+                f"{args.workers} one-thread workers; dask / local = {dask_s / scan_s:.2f} "
+                f"(target <= 1.2); same verdicts: {same}"
+            )
 
         subset = sorted(folder.iterdir())[: args.reference]
         ref_s, verdicts = reference(subset, args.workers)

@@ -38,7 +38,7 @@ from reachgate.batch.store import (
 from reachgate.checking.intervals import Check, Severity
 from reachgate.checking.pipeline import CheckSettings, check
 from reachgate.checking.rail import rail_positions
-from reachgate.errors import ReachgateError
+from reachgate.errors import ClusterLostError, ReachgateError
 from reachgate.model.robot import Robot, load_robot, robot_from_dict
 from reachgate.model.trajectory import import_fast_reader, load_trajectory
 from reachgate.version import __version__
@@ -68,6 +68,14 @@ WORKER_DEATH_RETRIES = 1
 PARENT_WATCH_PERIOD_S = 1.0
 #: Connection timeout for --cluster, s.
 CLUSTER_CONNECT_TIMEOUT_S = 20.0
+#: How long a scan waits for a scheduler to have a worker, at the start or when all have
+#: gone, before it stops with ClusterLostError, s.
+CLUSTER_NO_WORKER_S = 30.0
+#: Longest wait for a cluster result before the connection is looked at again, s.
+CLUSTER_POLL_S = 1.0
+#: Cases per cluster task at most, and tasks per worker thread aimed at (_cases_per_task).
+CLUSTER_MAX_CASES_PER_TASK = 16
+CLUSTER_TASKS_PER_THREAD = 4
 
 
 @dataclass(frozen=True)
@@ -332,15 +340,37 @@ def _run_local(
 
 
 def _connect_cluster(address: str):
-    """A dask.distributed Client on an existing scheduler, or ReachgateError."""
+    """A dask.distributed Client on an existing scheduler that has a worker, or an error."""
     try:
         from dask.distributed import Client
     except ImportError as error:
         raise ReachgateError(f"--cluster needs dask.distributed ({error})") from None
     try:
-        return Client(address, timeout=CLUSTER_CONNECT_TIMEOUT_S)
+        client = Client(address, timeout=CLUSTER_CONNECT_TIMEOUT_S)
     except (OSError, ValueError) as error:
         raise ReachgateError(f"--cluster {address}: cannot reach the scheduler ({error})") from None
+    try:
+        client.wait_for_workers(1, timeout=CLUSTER_NO_WORKER_S)
+    except TimeoutError:
+        client.close()
+        raise ClusterLostError(
+            f"--cluster {address}: the scheduler has no worker (waited {CLUSTER_NO_WORKER_S:g} s); "
+            "start workers on it and run the same command"
+        ) from None
+    return client
+
+
+def _cases_per_task(n_cases: int, threads: int) -> int:
+    """Cases per cluster task: enough that the scheduler's per-task cost stays small, few
+    enough that every thread gets several tasks (so the load evens out)."""
+    return max(1, min(CLUSTER_MAX_CASES_PER_TASK, n_cases // (CLUSTER_TASKS_PER_THREAD * threads)))
+
+
+def check_cases(
+    case_paths: list[str], settings: CheckSettings, robot_raw: bytes, robot_label: str
+) -> list[dict]:
+    """check_case for several cases in one cluster task."""
+    return [check_case(p, settings, robot_raw, robot_label) for p in case_paths]
 
 
 def _run_cluster(
@@ -348,37 +378,66 @@ def _run_cluster(
 ) -> Iterator[dict]:
     """The workers of an existing Dask distributed scheduler (they must see the case paths).
 
-    Closing the client (the caller does) cancels whatever is still queued.
+    Cases go in tasks of several (_cases_per_task). The loop waits at most
+    CLUSTER_POLL_S at a time and checks the connection in between: a scheduler that is gone,
+    or one with no worker for CLUSTER_NO_WORKER_S, raises ClusterLostError (every case
+    already yielded is stored by the caller). Closing the client (the caller does) cancels
+    whatever is still queued.
     """
-    from dask.distributed import as_completed
+    from dask.distributed import wait
 
+    address = client.scheduler.address
     token = hashlib.sha256(f"{os.getpid()} {time.time_ns()}".encode()).hexdigest()[:12]
-    running: dict = {}
     threads = sum(client.nthreads().values()) or 1
+    size = _cases_per_task(len(paths), threads)
+    chunks = [paths[i : i + size] for i in range(0, len(paths), size)]
+    todo = list(reversed(list(enumerate(chunks))))
+    running: dict = {}
     window = IN_FLIGHT_PER_WORKER * threads
-    todo = list(reversed(list(enumerate(paths))))
-    pending = as_completed(loop=client.loop)
+    no_worker_since: float | None = None
 
-    def submit() -> None:
-        index, path = todo.pop()
-        future = client.submit(
-            check_case, path, settings, robot_raw, label, key=f"reachgate-{token}-{index}"
+    def lost(what: str) -> ClusterLostError:
+        return ClusterLostError(
+            f"--cluster {address}: {what}; the cases finished before are in the store: run "
+            "the same command again, with the scheduler and its workers up, to resume"
         )
-        running[future.key] = path
-        pending.add(future)
 
-    while todo and len(running) < window:
-        submit()
-    for future in pending:
-        path = running.pop(future.key)
+    while todo or running:
+        while todo and len(running) < window:
+            index, chunk = todo.pop()
+            future = client.submit(
+                check_cases, chunk, settings, robot_raw, label, key=f"reachgate-{token}-{index}"
+            )
+            running[future] = chunk
         try:
-            result = future.result()
-        except Exception as error:  # a lost worker, a task the cluster gave up on
-            result = _error_result(path, f"the cluster failed it ({type(error).__name__})")
-        future.release()
-        yield result
-        if todo:
-            submit()
+            done, _ = wait(list(running), timeout=CLUSTER_POLL_S, return_when="FIRST_COMPLETED")
+        except TimeoutError:
+            done = set()
+        except Exception:  # the client gave up on its futures: the scheduler is gone
+            raise lost("the connection to the scheduler was lost") from None
+        if client.status != "running":
+            raise lost("the connection to the scheduler was lost")
+        if not done:
+            if client.scheduler_info().get("workers"):
+                no_worker_since = None
+            elif no_worker_since is None:
+                no_worker_since = time.monotonic()
+            elif time.monotonic() - no_worker_since > CLUSTER_NO_WORKER_S:
+                raise lost(f"the scheduler has had no worker for {CLUSTER_NO_WORKER_S:g} s")
+            continue
+        for future in done:
+            chunk = running.pop(future)
+            if future.status == "cancelled" or client.status != "running":
+                raise lost("the connection to the scheduler was lost")
+            try:
+                results = future.result()
+            except Exception as error:  # a lost worker, a task the cluster gave up on
+                results = [
+                    _error_result(p, f"the cluster failed it ({type(error).__name__})")
+                    for p in chunk
+                ]
+            future.release()
+            yield from results
 
 
 # -- the parent side -----------------------------------------------------------------------
