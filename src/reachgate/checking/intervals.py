@@ -23,6 +23,7 @@ class Check(Enum):
     REACH = "reach"
     BRANCH = "branch"
     LAG = "lag"
+    CLEARANCE = "clearance"
 
 
 #: Checks that a uniform time stretch can clear.

@@ -18,6 +18,17 @@ from typing import Any
 import numpy as np
 
 from reachgate.errors import ReachgateError
+from reachgate.model.geometry import (
+    Attach,
+    Box,
+    Capsule,
+    LinkCapsules,
+    Offset,
+    Part,
+    Plane,
+    Solid,
+    Sphere,
+)
 from reachgate.model.transforms import transform_from_xyz_rpy
 
 
@@ -104,10 +115,12 @@ class Chain:
 
 @dataclass(frozen=True, eq=False)
 class Robot:
-    """A validated robot: DH rows, joint and rail limits, mount, tool, thresholds.
+    """A validated robot: DH rows, joint and rail limits, mount, tool, thresholds, geometry.
 
     Axis order everywhere (arrays of shape (..., n_axes)): the rail first if there is one,
-    then the arm joints base to flange.
+    then the arm joints base to flange. `parts` are the shapes the file gives (DESIGN §8);
+    `geometry_missing` names the parts it gives none for ("base", "link3", "payload"), which
+    clearance cannot check.
     """
 
     name: str
@@ -120,6 +133,8 @@ class Robot:
     flange_T_tool: np.ndarray
     thresholds: Thresholds
     source: str = "<arrays>"
+    parts: tuple[Part, ...] = ()
+    geometry_missing: tuple[str, ...] = ()
 
     @cached_property
     def axes(self) -> tuple[Axis, ...]:
@@ -293,7 +308,7 @@ def _axis(table: _Table, name: str, kind: JointKind) -> Axis:
     )
 
 
-def _joint(table: _Table, index: int) -> tuple[DHRow, Axis]:
+def _joint(table: _Table, index: int) -> tuple[DHRow, Axis, float | None]:
     name = table.text("name", default=f"j{index + 1}")
     kind_text = table.text("type", default="revolute")
     try:
@@ -309,8 +324,9 @@ def _joint(table: _Table, index: int) -> tuple[DHRow, Axis]:
         d = table.number("offset_m", default=0.0)
         theta = math.radians(table.number("theta_deg", default=0.0))
     axis = _axis(table, name, kind)
+    link_radius_m = table.number("link_radius_m", default=None, positive=True)
     table.reject_unknown()
-    return DHRow(a, alpha, d, theta), axis
+    return DHRow(a, alpha, d, theta), axis, link_radius_m
 
 
 def _thresholds(table: _Table | None) -> Thresholds:
@@ -340,6 +356,118 @@ def _thresholds(table: _Table | None) -> Thresholds:
     return result
 
 
+# --- geometry (DESIGN §8) -------------------------------------------------------------------
+
+#: Solid kinds a robot payload may take; a rig obstacle may also be a plane.
+PAYLOAD_SOLIDS = ("sphere", "capsule", "box")
+OBSTACLE_SOLIDS = ("sphere", "capsule", "box", "plane")
+#: Characters a shape name may not hold: "." joins robot and shape, "/" joins a pair's names.
+_NAME_SEPARATORS = "./"
+
+
+def shape_name(table: _Table, key: str = "name") -> str:
+    """A part or obstacle name: a non-empty string without "." or "/" (they join names)."""
+    value = table.text(key)
+    if not value.strip() or any(c in value for c in _NAME_SEPARATORS):
+        raise table.fail(key, f"must be a non-empty name without '.' or '/', got {value!r}")
+    return value
+
+
+def solid_from_table(table: _Table, kinds: tuple[str, ...] = OBSTACLE_SOLIDS) -> Solid:
+    """Exactly one of the `kinds` sub-tables of `table`, validated into a solid (SI).
+
+    sphere = {center_m, radius_m}, capsule = {from_m, to_m, radius_m}, box = {center_m,
+    size_m (full edges), rpy_deg (optional)}, plane = {point_m, normal (non-zero, normalised)}.
+    Non-positive radii and sizes are refused with file, key and value.
+    """
+    present = [kind for kind in kinds if kind in table.data]
+    if len(present) != 1:
+        raise ReachgateError(
+            f"{table.file}: key {table.path}: needs exactly one of {', '.join(kinds)}, "
+            f"got {', '.join(present) or 'none'}"
+        )
+    kind = present[0]
+    sub = table.table(kind)
+    if kind == "sphere":
+        solid: Solid = Sphere(sub.vector("center_m", 3), sub.number("radius_m", positive=True))
+    elif kind == "capsule":
+        solid = Capsule(
+            sub.vector("from_m", 3), sub.vector("to_m", 3), sub.number("radius_m", positive=True)
+        )
+    elif kind == "box":
+        center = sub.vector("center_m", 3)
+        size = sub.vector("size_m", 3)
+        if min(size) <= 0:
+            raise sub.fail("size_m", f"every edge must be positive, got {list(size)!r}")
+        rpy = sub.vector("rpy_deg", 3, default=[0.0, 0.0, 0.0])
+        solid = Box(center, size, tuple(math.radians(v) for v in rpy))
+    else:
+        point = sub.vector("point_m", 3)
+        normal = np.array(sub.vector("normal", 3))
+        length = float(np.linalg.norm(normal))
+        if length == 0.0:
+            raise sub.fail("normal", "must not be zero")
+        solid = Plane(point, tuple(float(v) for v in normal / length))
+    sub.reject_unknown()
+    return solid
+
+
+def _link_offsets(convention: Convention, row: DHRow, joint: Axis) -> tuple[Offset, ...]:
+    """The row's non-zero offsets in the order the row walks them (DESIGN §8)."""
+    has_d = row.d_m != 0.0 or not joint.is_revolute  # a prismatic d moves: always a capsule
+    has_a = row.a_m != 0.0
+    order = (
+        ((Offset.D, has_d), (Offset.A, has_a))
+        if convention is Convention.STANDARD
+        else ((Offset.A, has_a), (Offset.D, has_d))
+    )
+    return tuple(offset for offset, present in order if present)
+
+
+def _geometry(
+    top: _Table,
+    convention: Convention,
+    rows: tuple[DHRow, ...],
+    joints: tuple[Axis, ...],
+    link_radii: list[float | None],
+    mount_radius_m: float | None,
+    carriage_T_base: np.ndarray,
+) -> tuple[tuple[Part, ...], tuple[str, ...]]:
+    """Parts the file gives geometry for, and the names of those it gives none for."""
+    parts: list[Part] = []
+    missing: list[str] = []
+    if mount_radius_m is None:
+        missing.append("base")
+    else:
+        mount_m = tuple(float(v) for v in carriage_T_base[:3, 3])
+        pedestal = Capsule((0.0, 0.0, 0.0), mount_m, mount_radius_m)
+        parts.append(Part("base", 0, Attach.BASE, pedestal))
+    for i, (row, joint, radius) in enumerate(zip(rows, joints, link_radii, strict=True)):
+        name = f"link{i + 1}"
+        if radius is None:
+            missing.append(name)
+            continue
+        offsets = _link_offsets(convention, row, joint)
+        if offsets:  # both offsets zero: the row adds no length, so no capsule (not missing)
+            parts.append(Part(name, i + 1, Attach.LINK, LinkCapsules(radius, offsets)))
+    payloads = top.get("payload", default=[])
+    if not isinstance(payloads, list):
+        raise top.fail("payload", "must be [[payload]] tables")
+    if not payloads:
+        missing.append("payload")
+    taken = {"base", *(f"link{i + 1}" for i in range(len(rows)))}
+    for k, item in enumerate(payloads):
+        table = _Table(item, top.file, f"payload[{k + 1}]")
+        name = shape_name(table)
+        if name in taken:
+            raise table.fail("name", f"{name!r} is used twice or names a link or the base")
+        taken.add(name)
+        solid = solid_from_table(table, PAYLOAD_SOLIDS)
+        table.reject_unknown()
+        parts.append(Part(name, len(rows) + 1, Attach.FLANGE, solid))
+    return tuple(parts), tuple(missing)
+
+
 def robot_from_dict(data: dict[str, Any], source: str = "<dict>") -> Robot:
     """Validate a parsed robot description (the TOML structure of DESIGN §3) into a Robot."""
     top = _Table(data, source, "")
@@ -362,6 +490,7 @@ def robot_from_dict(data: dict[str, Any], source: str = "<dict>") -> Robot:
         rail_table.reject_unknown()
 
     mount = top.table("mount", optional=True)
+    mount_radius_m = None if mount is None else mount.number("radius_m", None, positive=True)
     carriage_T_base = np.eye(4) if mount is None else _pose(mount)
 
     joint_list = top.get("joints", default=None)
@@ -370,7 +499,7 @@ def robot_from_dict(data: dict[str, Any], source: str = "<dict>") -> Robot:
     parsed = [
         _joint(_Table(item, source, f"joints[{i + 1}]"), i) for i, item in enumerate(joint_list)
     ]
-    names = [axis.name for _, axis in parsed]
+    names = [axis.name for _, axis, _ in parsed]
     for i, joint_name in enumerate(names):
         if joint_name in names[:i] or joint_name == "rail":
             raise ReachgateError(
@@ -380,18 +509,25 @@ def robot_from_dict(data: dict[str, Any], source: str = "<dict>") -> Robot:
     tool = top.table("tool", optional=True)
     flange_T_tool = np.eye(4) if tool is None else _pose(tool)
     thresholds = _thresholds(top.table("thresholds", optional=True))
+    rows = tuple(row for row, _, _ in parsed)
+    joints = tuple(axis for _, axis, _ in parsed)
+    parts, missing = _geometry(
+        top, convention, rows, joints, [r for _, _, r in parsed], mount_radius_m, carriage_T_base
+    )
     top.reject_unknown()
     return Robot(
         name=name,
         convention=convention,
-        rows=tuple(row for row, _ in parsed),
-        joints=tuple(axis for _, axis in parsed),
+        rows=rows,
+        joints=joints,
         rail=rail,
         cell_T_rail=cell_T_rail,
         carriage_T_base=carriage_T_base,
         flange_T_tool=flange_T_tool,
         thresholds=thresholds,
         source=source,
+        parts=parts,
+        geometry_missing=missing,
     )
 
 
