@@ -6,12 +6,12 @@ in m, limit = min_m), per-pair margins and, for pairs that come near, the distan
 
 How it works, over blocks of samples and never per sample in Python:
 
-1. Broad phase. Samples are cut into blocks of BLOCK_SAMPLES. Each pair's exact distance is
-   taken at the first sample of every block; a bound on how far any point of either shape can
-   move from there within the block (the axes' largest excursions from that sample times the
-   motion bounds of kinematics.bodies) gives a lower bound over the whole block, between
-   samples included. Blocks whose bound stays above near_m are skipped for that pair.
-2. Narrow phase. The other blocks are evaluated at every sample (checking.distances).
+1. Broad phase. Samples are cut into blocks (BLOCK_LEVELS, coarse to fine). Each pair's exact
+   distance is taken at the first sample of a block; a bound on how far any point of either
+   shape can move within the block (each axis's range over the block times the motion bounds
+   of kinematics.bodies) gives a lower bound over the whole block, between samples included.
+   Blocks whose bound stays above near_m are dropped for that pair, the others split finer.
+2. Narrow phase. The finest blocks left are evaluated at every sample (checking.distances).
 3. Between samples. For each step the adaptive bound of Schwarzer, Saha and Latombe (2005):
    with distances d0, d1 at the two samples and a bound L on how far the two shapes can move
    towards each other over the step, the distance along the step (joint values interpolated
@@ -50,11 +50,14 @@ from reachgate.kinematics.bodies import (
 from reachgate.model.geometry import Obstacle
 from reachgate.model.robot import Robot
 
-#: Samples per broad-phase block: the pair's distance is taken exactly at the first sample and
-#: bounded over the rest by the motion bounds (a trade between the exact evaluations at block
-#: starts and the blocks that cannot be skipped; tuned on tests/benchmarks/bench_clearance.py).
-BLOCK_SAMPLES = 32
-#: Samples per chunk of work: bounds the memory of the posed shapes on long runs.
+#: Block sizes of the broad phase, coarse to fine (each divides the one before): a pair's
+#: distance is taken exactly at each block's first sample and bounded over the block by the
+#: motion bounds; blocks that cannot be dropped are split into the next size. Tuned on
+#: tests/benchmarks/bench_clearance.py (coarse blocks make few exact evaluations, fine ones
+#: leave few samples to evaluate one by one).
+BLOCK_LEVELS = (512, 64, 8)
+#: Samples per chunk of work (a multiple of the coarsest block): bounds the memory of the
+#: posed shapes on long runs.
 CHUNK_SAMPLES = 65_536
 #: Bisection depth for a step the between-sample bound cannot clear: each halving halves the
 #: motion bound, so 2^-24 of the step's motion is left unresolved at most.
@@ -302,17 +305,27 @@ class _PairState:
         return pair_name(self.a.name, self.b.name)
 
 
-def _block_excursions(q: np.ndarray, starts: np.ndarray) -> np.ndarray:
-    """Largest |q - q(block start)| per block and axis, the next block's start included.
+def _block_ranges(values: np.ndarray, total: int) -> dict[int, tuple[np.ndarray, np.ndarray]]:
+    """Largest and least value of every column over the blocks of each size in BLOCK_LEVELS.
 
-    q: (M, n_axes); starts: (n_blocks,) block starts (0, K, 2K, ...) -> (n_blocks, n_axes).
+    values: (M, k); total: M rounded up to the coarsest block (the last sample repeats past
+    the end). Each block includes the next block's first sample, so that any two
+    configurations on a block's samples and steps differ by at most high - low per axis.
+    Returns {size: (high, low)}, each (total // size, k); coarse sizes from the finest.
     """
-    owner = np.repeat(np.arange(starts.size), np.diff(np.append(starts, q.shape[0])))
-    away = np.abs(q - q[starts][owner])
-    excursion = np.maximum.reduceat(away, starts, axis=0)
-    if starts.size > 1:
-        excursion[:-1] = np.maximum(excursion[:-1], np.abs(q[starts[1:]] - q[starts[:-1]]))
-    return excursion
+    columns = np.ascontiguousarray(values.T)
+    edge = np.repeat(columns[:, -1:], total + 1 - columns.shape[1], axis=1)
+    padded = np.concatenate([columns, edge], axis=1)
+    finest = BLOCK_LEVELS[-1]
+    body = padded[:, :total].reshape(columns.shape[0], total // finest, finest)
+    following = padded[:, finest : total + 1 : finest]
+    high = np.maximum(body.max(axis=2), following)
+    low = np.minimum(body.min(axis=2), following)
+    out = {finest: (high.T, low.T)}
+    for size in BLOCK_LEVELS[:-1]:
+        shape = (columns.shape[0], total // size, size // finest)
+        out[size] = (high.reshape(shape).max(axis=2).T, low.reshape(shape).min(axis=2).T)
+    return out
 
 
 def check_clearance(
@@ -394,53 +407,88 @@ def check_clearance(
     return ClearanceResult(tuple(rows), margins, closest, tuple(notes))
 
 
+def _pose_at(scene, safe_q, wanted):
+    """Pose every robot at the chunk positions some pair wants: (poses, rank of positions)."""
+    poses = [scene.pose(r, safe_q[r][mask]) for r, mask in enumerate(wanted)]
+    return poses, [np.cumsum(mask) - 1 for mask in wanted]
+
+
+def _distance_at(scene, state, poses, rank, positions) -> np.ndarray:
+    where = [None if s.robot is None else rank[s.robot][positions] for s in (state.a, state.b)]
+    return _pair_distance(
+        scene.primitives(state.a, poses), scene.primitives(state.b, poses), *where
+    )
+
+
 def _chunk(scene, settings, t_s, qs, good_all, states, first, stop) -> None:
-    """Rows, margins and between-sample candidates of samples [first, stop) of every pair."""
+    """Rows, margins and between-sample candidates of samples [first, stop) of every pair.
+
+    Broad phase by levels (BLOCK_LEVELS): at each level a pair's remaining blocks are split,
+    its exact distance taken at each block's first sample, and a block is dropped when that
+    distance less both shapes' motion bounds over the block stays above near_m.
+    """
     end = min(stop + 1, t_s.size)  # one sample more: the step into the next chunk
     count = end - first
     good = good_all[first:end]
-    starts = np.arange(0, count, BLOCK_SAMPLES)
-    block_of = np.arange(count) // BLOCK_SAMPLES
-    safe_q, motion, bad_block = [], [], []
+    safe_q = []
     for r, placed in enumerate(scene.robots):
         q = qs[r][first:end]
-        q = np.where(good[:, None], q, placed.robot.home)  # untrusted rows: posed at home
-        safe_q.append(q)
-        motion.append(_block_excursions(q, starts) @ scene.bounds[r])  # (n_blocks, n_parts)
-    bad_block = np.logical_or.reduceat(~good, starts) if count else np.zeros(0, bool)
-    refs = [scene.pose(r, q[starts]) for r, q in enumerate(safe_q)]
-    needs = []
-    for state in states:
-        d_ref = _pair_distance(scene.primitives(state.a, refs), scene.primitives(state.b, refs))
-        lower = d_ref.copy()
+        safe_q.append(np.where(good[:, None], q, placed.robot.home))  # untrusted: at home
+    coarsest = BLOCK_LEVELS[0]
+    total = -(-count // coarsest) * coarsest
+    blocks = [np.arange(total // coarsest) for _ in states]  # per pair, block indices
+    ranges = [_block_ranges(q, total) for q in safe_q]
+    untrusted = _block_ranges((~good).astype(float)[:, None], total)
+    for size in BLOCK_LEVELS:
+        motion = [
+            (ranges[r][size][0] - ranges[r][size][1]) @ scene.bounds[r] for r in range(len(safe_q))
+        ]  # (n_blocks, n_parts) per robot
+        bad = untrusted[size][0][:, 0] > 0
+        wanted = [np.zeros(count, bool) for _ in scene.robots]
+        for state, kept in zip(states, blocks, strict=True):
+            for shape in (state.a, state.b):
+                if shape.robot is not None:
+                    wanted[shape.robot][kept * size] = True
+        poses, rank = _pose_at(scene, safe_q, wanted)
+        for i, state in enumerate(states):
+            kept = blocks[i]
+            if kept.size == 0:
+                continue
+            lower = _distance_at(scene, state, poses, rank, kept * size)
+            for shape in (state.a, state.b):
+                if shape.robot is not None:
+                    lower = lower - motion[shape.robot][kept, shape.part]
+            need = ~(lower > settings.near_m) | bad[kept]
+            if (~need).any():
+                state.skipped_bound_m = min(state.skipped_bound_m, float(lower[~need].min()))
+            kept = kept[need]
+            finer = BLOCK_LEVELS[BLOCK_LEVELS.index(size) + 1] if size != BLOCK_LEVELS[-1] else 0
+            if finer:
+                split = size // finer
+                kept = (kept[:, None] * split + np.arange(split)).ravel()
+                kept = kept[kept * finer < count]
+            blocks[i] = kept
+    # the samples of every remaining finest block, its end (the next block's start) included
+    finest = BLOCK_LEVELS[-1]
+    masks = []
+    for kept in blocks:
+        mask = np.zeros(count, bool)
+        index = (kept[:, None] * finest + np.arange(finest + 1)).ravel()
+        mask[index[index < count]] = True
+        masks.append(mask)
+    wanted = [np.zeros(count, bool) for _ in scene.robots]
+    for state, mask in zip(states, masks, strict=True):
         for shape in (state.a, state.b):
             if shape.robot is not None:
-                lower -= motion[shape.robot][:, shape.part]
-        need = ~(lower > settings.near_m) | bad_block
-        if (~need).any():
-            state.skipped_bound_m = min(state.skipped_bound_m, float(lower[~need].min()))
-        mask = need[block_of]
-        mask[starts[1:][need[:-1]]] = True  # a block's steps end on the next block's start
-        needs.append(mask)
-    # pose every robot once at the samples some pair of it needs
-    union = [np.zeros(count, bool) for _ in scene.robots]
-    for state, mask in zip(states, needs, strict=True):
-        for shape in (state.a, state.b):
-            if shape.robot is not None:
-                union[shape.robot] |= mask
-    poses = [scene.pose(r, safe_q[r][u]) for r, u in enumerate(union)]
-    rank = [np.cumsum(u) - 1 for u in union]
+                wanted[shape.robot] |= mask
+    poses, rank = _pose_at(scene, safe_q, wanted)
     t_chunk = t_s[first:stop]
-    for state, mask in zip(states, needs, strict=True):
+    for state, mask in zip(states, masks, strict=True):
         index = np.flatnonzero(mask)
         if index.size == 0:
             state.stream.feed(t_chunk[:1], [-np.inf], [np.inf], settings.min_m)
             continue
-        where = [None if s.robot is None else rank[s.robot][index] for s in (state.a, state.b)]
-        d = _pair_distance(
-            scene.primitives(state.a, poses), scene.primitives(state.b, poses), *where
-        )
-        d = np.where(good[index], d, np.nan)
+        d = np.where(good[index], _distance_at(scene, state, poses, rank, index), np.nan)
         in_chunk = index < stop - first
         _record(state, settings, t_chunk, index[in_chunk], d[in_chunk], first)
         _flag_steps(scene, settings, state, safe_q, index, d, first)
