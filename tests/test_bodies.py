@@ -149,3 +149,28 @@ def test_motion_bounds_hold_for_random_straight_line_steps(convention, seed):
                 for end in ends:
                     moved = np.linalg.norm(end - end[:, :1], axis=0).max()
                     assert moved <= allowed[j] + 1e-12, (part.name, moved, allowed[j])
+
+
+def test_motion_bounds_cover_a_prismatic_joint_driven_beyond_its_range():
+    """A path may push a prismatic joint past its range (the position check reports it); the
+    bound then takes the path's own travel, and still holds on dense resampling."""
+    robot = robot_from_dict(arm("standard"))
+    q0 = np.array([1.0, 0.3, -0.4, 1.4, 0.2, 0.5, -0.3])  # j3 at 1.4 m, range [0, 0.5]
+    step = np.array([0.0, 0.5, 0.4, 0.3, 0.0, 0.2, 0.1])
+    s = np.linspace(0.0, 1.0, 201)[:, None]
+    path = q0 + s * step
+    bounds = motion_bounds(robot, (path.min(axis=0), path.max(axis=0)))
+    # d = 0.30 + q reaches 2.0 m instead of 0.8 m: the levers of j1 and j2 about the parts
+    # from row 3 on (its own d capsule included) grow by 1.2 m, nothing else changes
+    growth = bounds - motion_bounds(robot)
+    beyond = [j for j, part in enumerate(robot.parts) if part.row >= 3]
+    np.testing.assert_allclose(growth[1:3][:, beyond], 1.2, atol=1e-12)
+    growth[1:3, beyond] = 0.0
+    np.testing.assert_allclose(growth, 0.0, atol=1e-12)
+    parts = pose_parts(robot, np.eye(4), path)
+    allowed = np.abs(step) @ bounds
+    for j, part in enumerate(robot.parts):
+        for primitive in parts[part.name]:
+            end = primitive.center_m if hasattr(primitive, "axes") else primitive.p1_m
+            moved = np.linalg.norm(end - end[:, :1], axis=0).max()
+            assert moved <= allowed[j] + 1e-12, (part.name, moved, allowed[j])

@@ -7,6 +7,7 @@ import numpy as np
 import pytest
 
 from reachgate.checking.clearance import _primitive_distance
+from reachgate.checking.distances import segment_segment
 from reachgate.kinematics.bodies import HalfSpace, OrientedBox, Segment
 from reachgate.model.transforms import rpy_to_matrix
 
@@ -189,3 +190,36 @@ def test_point_inside_a_box_is_minus_its_depth():
     box = OrientedBox(np.zeros((3, 1)), np.eye(3)[:, :, None], np.array([1.0, 0.5, 0.3]))
     inside = _primitive_distance(seg([0.2, 0.4, 0.0], [0.2, 0.4, 0.0], 0.05), box)
     assert inside[0] == pytest.approx(-0.15, abs=1e-15)
+
+
+def _dense_segment_distance(p0, p1, q0, q1, count=20_001) -> float:
+    """Least exact point-to-segment distance over dense points of either segment: an upper
+    bound on the true distance, within a hair of it for nearly parallel segments."""
+    s = np.linspace(0.0, 1.0, count)[:, None]
+    best = np.inf
+    for a0, a1, b0, b1 in ((p0, p1, q0, q1), (q0, q1, p0, p1)):
+        points = a0 + s * (a1 - a0)
+        step = b1 - b0
+        along = np.clip((points - b0) @ step / (step @ step), 0.0, 1.0)
+        best = min(best, np.linalg.norm(points - (b0 + along[:, None] * step), axis=1).min())
+    return float(best)
+
+
+def test_nearly_parallel_segments_keep_full_precision():
+    """Segments at 1e-2 to 1e-13 rad from parallel (where the line solution loses digits to
+    cancellation) and exactly parallel: never above the dense point-to-segment bound, and
+    within 1e-12 m of it."""
+    rng = np.random.default_rng(1209)
+    for angle in (1e-2, 1e-5, 1e-8, 1e-9, 1e-10, 1e-13, 0.0):
+        for _ in range(20):
+            p0, u = rng.normal(size=3), rng.normal(size=3)
+            u /= np.linalg.norm(u)
+            side = np.cross(u, rng.normal(size=3))
+            v = u + angle * side / np.linalg.norm(side)
+            p1 = p0 + rng.uniform(0.2, 2.0) * u
+            q0 = p0 + rng.normal(0.0, 0.5, 3)
+            q1 = q0 + rng.uniform(0.2, 2.0) * v / np.linalg.norm(v)
+            ours = segment_segment(p0[:, None], p1[:, None], q0[:, None], q1[:, None])[0]
+            dense = _dense_segment_distance(p0, p1, q0, q1)
+            assert ours <= dense + 1e-15
+            assert ours == pytest.approx(dense, abs=1e-12)

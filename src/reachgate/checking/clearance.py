@@ -117,8 +117,11 @@ class PairPlan:
 @dataclass(frozen=True)
 class ClearanceResult:
     """Rows, margins ("a/b" -> 1 - min_m / smallest distance, None if never measured), the
-    distance per sample (N,) of each pair that comes within near_m (NaN where it was not
-    evaluated: farther than near_m by the broad phase, or an untrusted sample), notes."""
+    distance per sample (N,) of each pair that comes within near_m at some sample, and notes.
+
+    A closest_m series is NaN where the pair was not evaluated (the broad phase proved it
+    farther than near_m there, or the sample is untrusted); it holds every evaluated sample
+    of the chunks of CHUNK_SAMPLES in which the pair came within near_m."""
 
     rows: tuple[Violation, ...]
     margins: dict[str, float | None]
@@ -363,6 +366,10 @@ def check_clearance(
             ok &= np.asarray(trusted[placed.name], dtype=bool)
         good &= ok
         qs.append(q)
+    for r, q in enumerate(qs):  # prismatic joints may travel beyond their range on a path
+        if good.any() and not all(j.is_revolute for j in scene.robots[r].robot.joints):
+            travel = (q[good].min(axis=0), q[good].max(axis=0))
+            scene.bounds[r] = motion_bounds(scene.robots[r].robot, travel)
     states = []
     for a_name, b_name in plan.checked:
         a, b = scene.by_name[a_name], scene.by_name[b_name]
@@ -588,21 +595,31 @@ def _between_samples(scene, settings, t_s, qs, states):
         if owner.size:
             span = (s1 - s0) * reach[owner]
             np.minimum.at(bound_left, owner, np.minimum(np.minimum(d0, d1), 0.5 * (d0 + d1 - span)))
-        for i in np.flatnonzero((found < settings.min_m) | unresolved):
-            start, stop = float(t_s[k[i]]), float(t_s[k[i] + 1])
-            if found[i] < settings.min_m:
-                worst_s = start + found_s[i] * (stop - start)
-                worst, how = float(found[i]), "found by bisection"
+        hit = found < settings.min_m
+        report = np.flatnonzero(hit | unresolved)
+        if report.size == 0:
+            continue
+        # one row per run of consecutive reported steps (each step's samples were clear)
+        breaks = np.flatnonzero(np.diff(k[report]) != 1) + 1
+        for run in np.split(report, breaks):
+            start, stop = float(t_s[k[run[0]]]), float(t_s[k[run[-1]] + 1])
+            value = np.where(hit[run], found[run], bound_left[run])
+            i = run[int(np.argmin(value))]
+            step_start, step_stop = float(t_s[k[i]]), float(t_s[k[i] + 1])
+            if hit[i]:
+                worst_s = step_start + found_s[i] * (step_stop - step_start)
+                how = "found by bisection"
             else:
-                worst_s, worst = 0.5 * (start + stop), float(bound_left[i])
+                worst_s = 0.5 * (step_start + step_stop)
                 how = f"a lower bound: {MAX_BISECTIONS} bisections did not settle it"
+            worst = float(value.min())
             rows.append(
                 Violation(Check.CLEARANCE, state.name, Severity.VIOLATION, start, stop,
                           worst_s, worst, settings.min_m, "m")
             )  # fmt: skip
             notes.append(
-                f"clearance {state.name}: between the samples at {start:.4f} s and {stop:.4f} s "
-                f"the pair comes to {worst:.4f} m ({how}); both samples were clear"
+                f"clearance {state.name}: between the samples from {start:.4f} s to {stop:.4f} s "
+                f"the pair comes to {worst:.4f} m ({how}); every sample there was clear"
             )
             state.smallest_m = min(state.smallest_m, worst)
     return rows, notes

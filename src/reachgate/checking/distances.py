@@ -21,6 +21,9 @@ import numpy as np
 
 #: Squared segment lengths below this (m²) are points: the direction is undefined below it.
 DEGENERATE_M2 = 1e-24
+#: sin² of the angle between two segments below which the line solution is also checked
+#: against the ends (about 1e-3 rad: there its cancellation starts to cost digits).
+NEAR_PARALLEL = 1e-6
 
 
 def _dot(u, v):
@@ -43,8 +46,8 @@ def segment_segment(p0, p1, q0, q1) -> np.ndarray:
     e_safe = np.where(e_ok, e, 1.0)
     denom = a * e - b * b
     # s on the infinite lines (0 where parallel: any s serves, the clamps below settle t)
-    s = np.where(denom > DEGENERATE_M2 * np.maximum(a * e, 1.0), (b * f - c * e), 0.0)
-    s = np.clip(s / np.where(denom > DEGENERATE_M2 * np.maximum(a * e, 1.0), denom, 1.0), 0, 1)
+    crossing = denom > DEGENERATE_M2 * np.maximum(a * e, 1.0)
+    s = np.where(crossing, np.clip((b * f - c * e) / np.where(crossing, denom, 1.0), 0, 1), 0)
     t = (b * s + f) / e_safe
     # t outside [0, 1]: clamp it and recompute s for that end
     s = np.where(t < 0.0, np.clip(-c / a_safe, 0.0, 1.0), s)
@@ -56,7 +59,39 @@ def segment_segment(p0, p1, q0, q1) -> np.ndarray:
     s = np.where(e_ok, s, np.where(a_ok, np.clip(-c / a_safe, 0.0, 1.0), 0.0))
     t = np.where(e_ok, t, 0.0)
     gap = r + d1 * s - d2 * t
+    distance = np.sqrt(_dot(gap, gap))
+    # nearly parallel segments: the line solution loses digits to cancellation; the four
+    # end-to-segment distances (well conditioned) bound it, and where the closest pair has an
+    # end they are exact
+    close_to_parallel = a_ok & e_ok & (denom <= NEAR_PARALLEL * a * e)
+    if np.any(close_to_parallel):
+        distance = distance.copy()
+        distance[close_to_parallel] = np.minimum(
+            distance[close_to_parallel], _end_distances(p0, p1, q0, q1, close_to_parallel)
+        )
+    return distance
+
+
+def _point_segment(point, start, step, length2):
+    """Distance from points to segments start + [0, 1] step, each a list of three (k,)."""
+    along = np.clip(_dot(step, [point[i] - start[i] for i in range(3)]) / length2, 0.0, 1.0)
+    gap = [point[i] - start[i] - along * step[i] for i in range(3)]
     return np.sqrt(_dot(gap, gap))
+
+
+def _end_distances(p0, p1, q0, q1, mask) -> np.ndarray:
+    """Least distance from each segment's ends to the other segment, for the masked entries."""
+    shape = mask.shape
+    p0, p1, q0, q1 = (
+        [np.broadcast_to(v[i], shape)[mask] for i in range(3)] for v in (p0, p1, q0, q1)
+    )
+    dp = [p1[i] - p0[i] for i in range(3)]
+    dq = [q1[i] - q0[i] for i in range(3)]
+    lp, lq = _dot(dp, dp), _dot(dq, dq)
+    return np.minimum(
+        np.minimum(_point_segment(p0, q0, dq, lq), _point_segment(p1, q0, dq, lq)),
+        np.minimum(_point_segment(q0, p0, dp, lp), _point_segment(q1, p0, dp, lp)),
+    )
 
 
 def _in_box_frame(p0, p1, center, axes):

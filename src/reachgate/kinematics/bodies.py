@@ -185,7 +185,7 @@ def _part_reach_m(part: Part) -> float:
     return float(np.linalg.norm(shape.center_m) + np.linalg.norm(shape.half_m))
 
 
-def motion_bounds(robot: Robot) -> np.ndarray:
+def motion_bounds(robot: Robot, travel: tuple[np.ndarray, np.ndarray] | None = None) -> np.ndarray:
     """(n_axes, n_parts) bound on how far any point of each part moves per unit of each axis.
 
     A point of part j moves at most sum_i B[i, j] · |Δq_i| when the axes move along a straight
@@ -193,22 +193,27 @@ def motion_bounds(robot: Robot) -> np.ndarray:
     prismatic joints (m per m), and for revolute joint i the largest distance any point of the
     part can have from that joint's axis (m per rad), bounded over every configuration by the
     length of the DH polyline from a point of the axis to the part, plus the part's own reach.
-    Joints after a part's row do not move it.
+    Joints after a part's row do not move it. A prismatic joint's d counts at its longest
+    over its range, or over `travel` ((n_axes,) least and largest values of a path) where
+    that reaches farther.
     """
     parts = robot.parts
     n_rows = len(robot.rows)
     # polyline lengths in walk order: row i contributes its two offsets (prismatic d: the
     # largest |d| over its range)
     lengths = []
-    for row, joint in zip(robot.rows, robot.joints, strict=True):
+    first = 1 if robot.has_rail else 0
+    for i, (row, joint) in enumerate(zip(robot.rows, robot.joints, strict=True)):
         d = abs(row.d_m)
         if not joint.is_revolute:
-            d = max(abs(row.d_m + joint.lower), abs(row.d_m + joint.upper))
+            ends = [joint.lower, joint.upper]
+            if travel is not None:
+                ends += [float(travel[0][first + i]), float(travel[1][first + i])]
+            d = max(abs(row.d_m + end) for end in ends)
         pair = (d, abs(row.a_m))
         lengths.extend(pair if robot.convention is Convention.STANDARD else pair[::-1])
     cumulative = np.concatenate([[0.0], np.cumsum(lengths)])  # length from Q[0] to Q[k]
     bounds = np.zeros((robot.n_axes, len(parts)))
-    first = 1 if robot.has_rail else 0
     for j, part in enumerate(parts):
         if robot.has_rail:
             bounds[0, j] = 1.0
