@@ -94,7 +94,7 @@ def test_joints_out_writes_the_solved_trajectory(tmp_path):
     result = run("check", str(DEMO_ROBOT), CALM, "--rail", "follow", "--joints-out", str(joints))
     assert result.exit_code == 0
     lines = [ln for ln in joints.read_text().splitlines() if not ln.startswith("#")]
-    assert lines[0] == "t_s,rail_m,j1_deg,j2_deg,j3_deg,j4_deg,j5_deg,j6_deg"
+    assert lines[0] == "t_s,rail_m,j1_deg,j2_deg,j3_deg,j4_deg,j5_deg,j6_deg,reachable"
     assert len(lines) == 1 + 10001
 
 

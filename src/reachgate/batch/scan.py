@@ -462,7 +462,9 @@ def _worst_margin(margins: dict) -> tuple[float | None, str | None, str | None]:
     best = (None, None, None)
     for axis, values in margins.items():
         for kind, value in values.items():
-            if not math.isnan(value) and (best[0] is None or value < best[0]):
+            if value is None or math.isnan(value):  # not measured
+                continue
+            if best[0] is None or value < best[0]:
                 best = (value, axis, kind)
     return best
 

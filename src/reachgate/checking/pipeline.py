@@ -133,7 +133,7 @@ class Report:
     duration_s: float
     verdict: Verdict
     violations: tuple[Violation, ...]
-    margins: dict[str, dict[str, float]]
+    margins: dict[str, dict[str, float | None]]
     slowdown: float | None
     settings: CheckSettings
     axis_names: tuple[str, ...]
@@ -159,7 +159,8 @@ class Report:
         }
 
     def to_json(self, indent: int | None = 2) -> str:
-        return json.dumps(self.as_dict(), indent=indent)
+        # allow_nan=False: a NaN or infinity that slipped through is an error, never written
+        return json.dumps(self.as_dict(), indent=indent, allow_nan=False)
 
 
 def _untrusted(mask: np.ndarray) -> np.ndarray:
@@ -193,7 +194,7 @@ def _rate_ratio(report: Report) -> float:
     needed = 0.0
     for margins in report.margins.values():
         for kind, power in ((Check.SPEED, 1.0), (Check.ACCEL, 2.0), (Check.JERK, 3.0)):
-            if kind.value in margins:
+            if margins.get(kind.value) is not None:
                 needed = max(needed, max(1.0 - margins[kind.value], 0.0) ** (1.0 / power))
     return needed
 
@@ -251,7 +252,8 @@ def _check_once(robot: Robot, trajectory: Trajectory, settings: CheckSettings) -
                 unit="rad" if axis.is_revolute else "m",
             )
         half_range = 0.5 * (axis.upper - axis.lower)
-        position = -peak / half_range if math.isfinite(peak) else float("nan")
+        # None (null in JSON): no sample was reachable, so no margin was measured
+        position = -peak / half_range if math.isfinite(peak) else None
         margins[axis.name] = {"position": position, **margins[axis.name]}
 
     rows += _singularity_rows(robot, t, solution, trusted)
@@ -381,12 +383,13 @@ def _rate_rows(robot: Robot, t: np.ndarray, q: np.ndarray, trusted: np.ndarray):
                 stream.feed(t[first:last], magnitude - limit, magnitude, limit)
                 peaks[axis.name, kind] = max(peaks[axis.name, kind], float(np.max(magnitude)))
     rows: list[Violation] = []
-    margins: dict[str, dict[str, float]] = {axis.name: {} for axis in robot.axes}
+    margins: dict[str, dict[str, float | None]] = {axis.name: {} for axis in robot.axes}
     worst_ratio = {Check.SPEED: 0.0, Check.ACCEL: 0.0, Check.JERK: 0.0}
+    measured = bool(trusted.any())  # else every rate was masked: no margin, not 1.0
     for (name, kind), (stream, limit) in streams.items():
         rows += stream.finish()
         ratio = peaks[name, kind] / limit
-        margins[name][kind.value] = 1.0 - ratio
+        margins[name][kind.value] = 1.0 - ratio if measured else None
         worst_ratio[kind] = max(worst_ratio[kind], ratio)
     return rows, margins, worst_ratio
 

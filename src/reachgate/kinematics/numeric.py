@@ -27,6 +27,14 @@ POSITION_TOL_M = 1e-13
 ORIENTATION_TOL_RAD = 1e-13
 #: Floor of the damping λ; keeps the step finite at exact singularities.
 DAMPING_MIN = 1e-12
+#: A sample stops iterating once its next step would remove less than this fraction of its
+#: squared error (to first order, 2·gᵀΔq with g = Jᵀe; gᵀΔq is compared with |e|²·tol/2).
+#: That is the least-squares point of a target out of reach (or a local minimum), where the
+#: damped steps only creep, by a constant factor per step; without this stop every sample out
+#: of reach spent the whole iteration budget. A Gauss–Newton step on a reachable target
+#: removes most of the error, so this never stops one short of its solution unless the
+#: Jacobian is singular to within about sqrt(tol)·|e| in the error's direction.
+STALL_TOL = 1e-6
 #: Iteration budget per sample in the sequential pass and per batch level.
 MAX_ITERATIONS_SEQUENTIAL = 200
 MAX_ITERATIONS_BATCH = 30
@@ -64,13 +72,19 @@ def _converged(error: np.ndarray) -> np.ndarray:
     )
 
 
+def _stalled(gain, error_sq):
+    """True where a step's first-order gain gᵀΔq is below STALL_TOL/2 of |e|²; arrays or floats."""
+    return gain < 0.5 * STALL_TOL * error_sq
+
+
 def refine(
     chain: Chain, chain_T_target: np.ndarray, q_seed: np.ndarray, max_iterations: int
 ) -> tuple[np.ndarray, np.ndarray]:
     """Damped least-squares iterations on all samples at once.
 
     (N, 4, 4) targets, (N, n) seeds -> ((N, n) solutions, (N, 6) final errors). Samples that
-    have converged are frozen; the loop ends when all have, or after max_iterations.
+    have converged, or whose next step would gain next to nothing (STALL_TOL), are frozen; the
+    loop ends when all are, or after max_iterations.
     """
     q = np.array(q_seed, dtype=float)
     active = np.arange(q.shape[0])
@@ -80,15 +94,19 @@ def refine(
         T, J = chain_pose_jacobian(chain, q[active])
         e = _pose_error(chain_T_target[active], T)
         error[active] = e
-        done = _converged(e)
-        if done.all():
+        keep = ~_converged(e)
+        if not keep.any():
             return q, error
-        keep = ~done
         active, e, J = active[keep], e[keep], J[keep]
-        damping = 0.5 * np.einsum("ni,ni->n", e, e) + DAMPING_MIN
-        JtJ = np.swapaxes(J, 1, 2) @ J + damping[:, None, None] * eye
-        step = np.linalg.solve(JtJ, np.einsum("nji,nj->ni", J, e)[..., None])[..., 0]
-        q[active] += step
+        error_sq = np.einsum("ni,ni->n", e, e)
+        gradient = np.einsum("nji,nj->ni", J, e)
+        JtJ = np.swapaxes(J, 1, 2) @ J + (0.5 * error_sq + DAMPING_MIN)[:, None, None] * eye
+        step = np.linalg.solve(JtJ, gradient[..., None])[..., 0]
+        moving = ~_stalled(np.einsum("ni,ni->n", gradient, step), error_sq)
+        if not moving.any():
+            return q, error
+        active = active[moving]
+        q[active] += step[moving]
     T, _ = chain_pose_jacobian(chain, q[active])
     error[active] = _pose_error(chain_T_target[active], T)
     return q, error
@@ -139,8 +157,12 @@ def _refine_single(
         linear = z[[1, 2, 0]] * lever[[2, 0, 1]] - z[[2, 0, 1]] * lever[[1, 2, 0]]  # z × lever
         J[:3] = np.where(revolute, linear, z)
         J[3:] = np.where(revolute, z, 0.0)
-        damping = 0.5 * (position_sq + orientation_sq) + DAMPING_MIN
-        q = q + np.linalg.solve(J.T @ J + damping * eye, J.T @ error)
+        gradient = J.T @ error
+        error_sq = position_sq + orientation_sq
+        step = np.linalg.solve(J.T @ J + (0.5 * error_sq + DAMPING_MIN) * eye, gradient)
+        if _stalled(float(gradient @ step), error_sq):
+            return q, error
+        q = q + step
     raise AssertionError("unreachable")  # the loop returns on its last iteration
 
 
@@ -163,22 +185,35 @@ def coarse_samples(chain_T_target: np.ndarray) -> np.ndarray:
 
 
 def _interpolated_seeds(
-    q: np.ndarray, known: np.ndarray, right: np.ndarray, todo: np.ndarray
+    q: np.ndarray,
+    known: np.ndarray,
+    right: np.ndarray,
+    todo: np.ndarray,
+    met: np.ndarray | None = None,
 ) -> np.ndarray:
     """Seeds (M, n) for the samples `todo` (M,) from the solved samples `known` (K,) around
     them (right: position in known of each one's right neighbour): cubic Lagrange
     interpolation through two solved samples on each side, linear where one side has fewer.
 
     A cubic seed is off by O(h⁴) instead of O(h²), which saves a damped least-squares step
-    on the coarser levels.
+    on the coarser levels. met: (K,) True where the known sample met its target (default
+    all). At the edge of a stretch out of reach the interpolation would mix met solutions
+    with least-squares points: there the cubic needs four met nodes, and a sample between a
+    met and an unmet neighbour starts from the met one.
     """
     k = known.size
     right_c = np.minimum(right, k - 1)
     left_i, right_i = known[right - 1], known[right_c]
     span = np.maximum(right_i - left_i, 1)
     weight = ((todo - left_i) / span)[:, None]
-    seed = (1 - weight) * q[left_i] + weight * q[right_i]
     cubic = (right >= 2) & (right + 1 <= k - 1)
+    if met is not None:
+        left_met, right_met = met[right - 1], met[right_c]
+        weight = np.where((left_met & ~right_met)[:, None], 0.0, weight)
+        weight = np.where((right_met & ~left_met)[:, None], 1.0, weight)
+        nodes_met = met[np.clip(right[:, None] + np.arange(-2, 2), 0, k - 1)].all(axis=1)
+        cubic &= nodes_met
+    seed = (1 - weight) * q[left_i] + weight * q[right_i]
     if cubic.any():
         nodes = known[right[cubic, None] + np.arange(-2, 2)]  # (m, 4) sample indices
         x = todo[cubic].astype(float)
@@ -222,17 +257,21 @@ def solve_path_numeric(
             known = np.flatnonzero(solved)
             right = np.searchsorted(known, todo)
             left_i = known[right - 1]
-            seed = _interpolated_seeds(q, known, right, todo)
+            seed = _interpolated_seeds(q, known, right, todo, _converged(error[known]))
             q[todo], error[todo] = refine(chain, chain_T_target[todo], seed, MAX_ITERATIONS_BATCH)
             solved[todo] = True
-            # Samples the batch could not finish get a sequential retry from their left neighbour.
-            stuck = ~_converged(error[todo])
-            for index, left in zip(todo[stuck], left_i[stuck], strict=True):
-                qi, ei = _refine_single(
-                    chain, chain_T_target[index], q[left], MAX_ITERATIONS_SEQUENTIAL
+            # Samples the batch could not finish, next to a solved one on their left, get a
+            # retry, all at once, from that neighbour's solution with the sequential pass's
+            # budget; the better result stays. (Inside a stretch out of reach the neighbour is
+            # no better a start than the interpolated seed.)
+            stuck = ~_converged(error[todo]) & _converged(error[left_i])
+            if stuck.any():
+                index = todo[stuck]
+                retry_q, retry_error = refine(
+                    chain, chain_T_target[index], q[left_i[stuck]], MAX_ITERATIONS_SEQUENTIAL
                 )
-                if np.linalg.norm(ei) < np.linalg.norm(error[index]):
-                    q[index], error[index] = qi, ei
+                better = np.linalg.norm(retry_error, axis=1) < np.linalg.norm(error[index], axis=1)
+                q[index[better]], error[index[better]] = retry_q[better], retry_error[better]
     return NumericSolution(
         q_arm=q,
         position_error_m=np.linalg.norm(error[:, :3], axis=1),

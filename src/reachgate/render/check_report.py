@@ -153,6 +153,14 @@ def _group_table(report: Report):
     return table
 
 
+def _margin_text(values: dict, key: str) -> str:
+    """A margin cell: '-' where the check does not apply, 'not measured' where it applies but
+    no sample could be measured (null in JSON)."""
+    if key not in values:
+        return "-"
+    return "not measured" if values[key] is None else f"{values[key]:.2f}"
+
+
 def render_table(report: Report, width: int = 110, max_rows: int = TABLE_MAX_ROWS) -> str:
     """The colour-free text report: verdict, interval rows, margins, advice, cautions."""
     from rich import box
@@ -224,9 +232,10 @@ def render_table(report: Report, width: int = 110, max_rows: int = TABLE_MAX_ROW
     for key in keys:
         margins.add_column(f"{key} left", justify="right")
     for axis, values in report.margins.items():
-        margins.add_row(axis, *(f"{values[k]:.2f}" if k in values else "-" for k in keys))
+        margins.add_row(axis, *(_margin_text(values, k) for k in keys))
     console.print(
-        "margins: fraction of each limit left over the run (1 unused, 0 at it, < 0 beyond)"
+        "margins: fraction of each limit left over the run "
+        "(1 unused, 0 at it, < 0 beyond; not measured: no sample to measure it on)"
     )
     console.print(margins)
     console.print(f"advice: {advice(report)}")
@@ -256,8 +265,13 @@ def render(report: Report, fmt: str) -> str:
 
 
 def write_joints(report: Report, path: Path, robot_axes) -> None:
-    """The solved joint trajectory as CSV: t_s then one column per axis (deg or m)."""
+    """The solved joint trajectory as CSV: t_s, one column per axis (deg or m), `reachable`.
+
+    A sample out of reach has no joint values anyone may replay: its axis fields are empty
+    and its `reachable` field 0 (1 elsewhere); the header comment says so.
+    """
     q = report.solution.q
+    reachable = report.solution.reach_excess_m <= 0
     columns = ["t_s"]
     scaled = [report.t_s]
     for i, axis in enumerate(robot_axes):
@@ -267,8 +281,19 @@ def write_joints(report: Report, path: Path, robot_axes) -> None:
         else:
             columns.append(f"{axis.name}_m")
             scaled.append(q[:, i])
-    data = np.column_stack(scaled)
+    columns.append("reachable")
+    scaled.append(reachable.astype(float))
+    buffer = io.StringIO()
+    np.savetxt(buffer, np.column_stack(scaled), delimiter=",", fmt="%.17g")
+    lines = buffer.getvalue().splitlines()
+    empty = "," * len(robot_axes)
+    for i in np.flatnonzero(~reachable):
+        lines[i] = f"{report.t_s[i]:.17g}{empty},0"
     with atomic_output(path) as handle:
         handle.write(f"# solved joint trajectory of {report.trajectory} on {report.robot}\n")
+        handle.write(
+            f"# {int((~reachable).sum())} samples out of reach (reachable = 0): no joint values, "
+            "their axis fields are empty; never replay them\n"
+        )
         handle.write(",".join(columns) + "\n")
-        np.savetxt(handle, data, delimiter=",", fmt="%.17g")
+        handle.write("\n".join(lines) + ("\n" if lines else ""))
