@@ -67,11 +67,12 @@ def test_check_picture_is_a_png_of_the_stated_size(tmp_path, robot_file, amplitu
 
 
 def test_check_picture_without_a_singularity_floor(tmp_path):
-    # Numeric solver, manipulability floor 0 (off): the panel shows the raw Yoshikawa measure.
+    # Numeric solver, both floors 0 (off): the panel shows the raw scale-free measure.
     import tomllib
 
     data = tomllib.loads(GANTRY.read_text())
     data["thresholds"]["manipulability_min"] = 0.0
+    data["thresholds"]["conditioning_min"] = 0.0
     robot = robot_from_dict(data, source="gantry without floor")
     report = check(robot, sway(robot, 0.05, 0.5))
     out = plot_report(report, robot, tmp_path / "raw.png")

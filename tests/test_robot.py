@@ -150,6 +150,20 @@ def test_negative_threshold_is_refused(tmp_path):
     )
 
 
+@pytest.mark.parametrize(
+    ("value", "fragment"), [("-0.01", "must not be negative"), ("1.0", "must be below 1")]
+)
+def test_conditioning_floor_outside_its_range_is_refused(tmp_path, value, fragment):
+    """The general-arm floor is a fraction of the measure's largest value, 1."""
+    text = GOOD.replace("[thresholds]", f"[thresholds]\nconditioning_min = {value}")
+    fails_with(tmp_path, text, "thresholds.conditioning_min", fragment)
+
+
+def test_conditioning_floor_is_read(tmp_path):
+    text = GOOD.replace("[thresholds]", "[thresholds]\nconditioning_min = 0.02")
+    assert load_robot(write(tmp_path, text)).thresholds.conditioning_min == 0.02
+
+
 def test_bad_vector_length_is_refused(tmp_path):
     fails_with(
         tmp_path,

@@ -28,6 +28,7 @@ from reachgate.checking.rail import DEFAULT_BANDWIDTH_HZ, RailPolicy, rail_posit
 from reachgate.errors import ReachgateError
 from reachgate.kinematics.chain import arm_manipulability
 from reachgate.kinematics.path_ik import PathSolution, solve_trajectory
+from reachgate.kinematics.singularity import conditioning, singularity_kinds
 from reachgate.model.robot import Robot
 from reachgate.model.trajectory import Trajectory
 from reachgate.model.transforms import transform_from_xyz_rpy
@@ -397,19 +398,31 @@ def _rate_rows(robot: Robot, t: np.ndarray, q: np.ndarray, trusted: np.ndarray):
 def _singularity_rows(
     robot: Robot, t: np.ndarray, solution: PathSolution, trusted: np.ndarray
 ) -> list[Violation]:
+    """Singularity rows. Closed-form arms: the wrist, elbow and shoulder factors. General
+    arms: the scale-free measure (kinematics/singularity.py), always. Any arm, when
+    manipulability_min > 0: Yoshikawa's measure as well. Rows of the last two are named by
+    the kind the geometry shows at their worst sample (`general` where it shows none)."""
     th = robot.thresholds
     floors = {"wrist": th.wrist_min_rad, "elbow": th.elbow_min_rad, "shoulder": th.shoulder_min_m}
+    units = {"wrist": "rad", "elbow": "rad", "shoulder": "m"}
     measures = dict(solution.measures)
-    if not measures and th.manipulability_min > 0:
-        measures["general"] = arm_manipulability(robot, solution.q)
-        floors["general"] = th.manipulability_min
+    # unreachable samples are masked below; finite values keep the measures finite there
+    q = np.where(np.isfinite(solution.q), solution.q, robot.home)
+    named = set()
+    if not measures:
+        measures["conditioning"] = conditioning(robot, q)
+        floors["conditioning"], units["conditioning"] = th.conditioning_min, "1"
+        named.add("conditioning")
+    if th.manipulability_min > 0:
+        measures["manipulability"] = arm_manipulability(robot, q)
+        floors["manipulability"], units["manipulability"] = th.manipulability_min, "1"
+        named.add("manipulability")
     rows: list[Violation] = []
     for kind, measure in measures.items():
         floor = floors[kind]
         if floor <= 0:
             continue
-        unit = {"wrist": "rad", "elbow": "rad", "shoulder": "m", "general": "1"}[kind]
-        rows += intervals(
+        found = intervals(
             t,
             np.where(trusted, floor - measure, -np.inf),
             (SINGULARITY_NEAR_FACTOR - 1) * floor,
@@ -417,8 +430,15 @@ def _singularity_rows(
             axis=kind,
             worst_value=measure,
             limit_value=floor,
-            unit=unit,
+            unit=units[kind],
         )
+        if kind in named and found:
+            worst = np.minimum(np.searchsorted(t, [v.worst_s for v in found]), t.size - 1)
+            found = [
+                replace(v, axis=name)
+                for v, name in zip(found, singularity_kinds(robot, q[worst]), strict=True)
+            ]
+        rows += found
     return rows
 
 

@@ -66,21 +66,51 @@ def _close(value: float, target: float) -> bool:
     return abs(value - target) < GEOMETRY_TOL
 
 
-def is_spherical_wrist(chain: Chain) -> bool:
-    """True when the chain has the structure this module solves in closed form."""
-    if chain.n != 6 or not chain.revolute.all():
+def wrist_axes_meet(chain: Chain) -> bool:
+    """True when the axes of joints 4, 5 and 6 (of six or more) are revolute and meet in one
+    point: a4 = a5 = 0 (neighbouring axes cross), d5 = 0 (at the same point) and neither pair
+    parallel."""
+    if chain.n < 6 or not chain.revolute[3:6].all():
         return False
     a, alpha, d = chain.a_m, chain.alpha_rad, chain.d_m
     return (
-        _close(abs(np.sin(alpha[0])), 1.0)
-        and _close(np.sin(alpha[1]), 0.0)
-        and _close(a[3], 0.0)
+        _close(a[3], 0.0)
         and _close(a[4], 0.0)
         and _close(d[4], 0.0)
-        and _close(abs(np.sin(alpha[3])), 1.0)
-        and _close(abs(np.sin(alpha[4])), 1.0)
-        and not _close(a[1], 0.0)
+        and not _close(np.sin(alpha[3]), 0.0)
+        and not _close(np.sin(alpha[4]), 0.0)
     )
+
+
+def closed_form_obstacle(chain: Chain) -> str | None:
+    """What keeps the chain from the closed-form solver, in words; None when it applies."""
+    if chain.n != 6:
+        return f"the arm has {chain.n} joints, not six"
+    if not chain.revolute.all():
+        prismatic = ", ".join(str(i + 1) for i in np.flatnonzero(~chain.revolute))
+        return f"joint(s) {prismatic} are prismatic"
+    a, alpha, d = chain.a_m, chain.alpha_rad, chain.d_m
+    for ok, reason in (
+        (_close(abs(np.sin(alpha[0])), 1.0), "axes 1 and 2 are not perpendicular"),
+        (_close(np.sin(alpha[1]), 0.0), "axes 2 and 3 are not parallel"),
+        (not _close(a[1], 0.0), "the upper arm has no length (a2 = 0)"),
+        (
+            _close(a[3], 0.0) and _close(a[4], 0.0) and _close(d[4], 0.0),
+            "the wrist axes 4, 5 and 6 do not meet in one point",
+        ),
+        (
+            _close(abs(np.sin(alpha[3])), 1.0) and _close(abs(np.sin(alpha[4])), 1.0),
+            "the wrist axes are not perpendicular in turn",
+        ),
+    ):
+        if not ok:
+            return reason
+    return None
+
+
+def is_spherical_wrist(chain: Chain) -> bool:
+    """True when the chain has the structure this module solves in closed form."""
+    return closed_form_obstacle(chain) is None
 
 
 def _combine(arrays, weights, start=None):

@@ -90,6 +90,9 @@ class Thresholds:
     elbow_min_rad: float = math.radians(5.0)
     shoulder_min_m: float = 0.05
     manipulability_min: float = 0.0
+    #: General arms: floor of the scale-free measure of kinematics/singularity.py, calibrated
+    #: to fire where wrist_min_deg fires (scripts/calibrate_conditioning.py; README).
+    conditioning_min: float = 0.0425
 
 
 @dataclass(frozen=True)
@@ -349,9 +352,12 @@ def _thresholds(table: _Table | None) -> Thresholds:
         elbow_min_rad=value("elbow_min_deg", defaults.elbow_min_rad, deg),
         shoulder_min_m=value("shoulder_min_m", defaults.shoulder_min_m),
         manipulability_min=value("manipulability_min", defaults.manipulability_min),
+        conditioning_min=value("conditioning_min", defaults.conditioning_min),
     )
     if result.rate_margin_fraction >= 1.0:
         raise table.fail("rate_margin_fraction", "must be below 1")
+    if result.conditioning_min >= 1.0:
+        raise table.fail("conditioning_min", "must be below 1 (the measure's largest value)")
     table.reject_unknown()
     return result
 

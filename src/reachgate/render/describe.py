@@ -7,8 +7,14 @@ import math
 import numpy as np
 
 from reachgate.kinematics.chain import cell_T_base, forward
-from reachgate.kinematics.closed_form import SphericalWristSolver, is_spherical_wrist
+from reachgate.kinematics.closed_form import (
+    SphericalWristSolver,
+    closed_form_obstacle,
+    is_spherical_wrist,
+    wrist_axes_meet,
+)
 from reachgate.kinematics.path_ik import solver_kind
+from reachgate.kinematics.singularity import characteristic_length_m
 from reachgate.model.robot import Robot
 from reachgate.model.transforms import matrix_to_rpy
 
@@ -86,10 +92,12 @@ def describe_robot(robot: Robot) -> str:
         f"roll {rpy[0]:.2f} pitch {rpy[1]:.2f} yaw {rpy[2]:.2f} deg"
     )
     spherical = is_spherical_wrist(robot.chain)
-    console.print(
-        f"wrist: {'spherical (axes 4, 5, 6 meet in one point)' if spherical else 'not spherical'}"
-    )
+    meet = "meet in one point" if wrist_axes_meet(robot.chain) else "do not meet in one point"
+    console.print(f"wrist axes: 4, 5 and 6 {meet}")
     console.print(f"IK solver: {solver_kind(robot).value}")
+    obstacle = closed_form_obstacle(robot.chain)
+    if obstacle is not None:
+        console.print(f"no closed form: {obstacle}")
     if spherical:
         solver = SphericalWristSolver(robot.chain)
         branch = solver.branch_of(robot.home[-6:] + robot.chain.theta_offset_rad)
@@ -116,4 +124,9 @@ def describe_robot(robot: Robot) -> str:
         f"shoulder {th.shoulder_min_m * 1000:.0f} mm, "
         f"manipulability floor {th.manipulability_min:g}"
     )
+    if not spherical:
+        console.print(
+            f"singularities: scale-free measure on every sample, floor {th.conditioning_min:g} "
+            f"(characteristic length {characteristic_length_m(robot) * 1000:.0f} mm)"
+        )
     return buffer.getvalue()

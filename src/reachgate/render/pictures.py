@@ -17,6 +17,7 @@ from reachgate.checking.intervals import Check, Violation
 from reachgate.checking.pipeline import SINGULARITY_NEAR_FACTOR, UNTRUSTED_NEIGHBOURS, Report
 from reachgate.errors import ReachgateError
 from reachgate.kinematics.chain import arm_manipulability
+from reachgate.kinematics.singularity import conditioning
 from reachgate.model.robot import Robot
 from reachgate.render.files import atomic_output
 
@@ -146,9 +147,13 @@ def _measures(robot: Robot, report: Report) -> tuple[dict[str, np.ndarray], bool
     th = robot.thresholds
     measures = dict(report.solution.measures)
     floors = {"wrist": th.wrist_min_rad, "elbow": th.elbow_min_rad, "shoulder": th.shoulder_min_m}
-    if not measures:
-        measures = {"general": arm_manipulability(robot, report.solution.q)}
-        floors = {"general": th.manipulability_min}
+    q = np.where(np.isfinite(report.solution.q), report.solution.q, robot.home)
+    if not measures:  # general arm: the scale-free measure the check uses
+        measures["conditioning"] = conditioning(robot, q)
+        floors["conditioning"] = th.conditioning_min
+    if th.manipulability_min > 0:
+        measures["manipulability"] = arm_manipulability(robot, q)
+        floors["manipulability"] = th.manipulability_min
     relative = all(floors[k] > 0 for k in measures)
     if relative:
         measures = {k: v / floors[k] for k, v in measures.items()}
