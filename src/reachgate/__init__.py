@@ -15,12 +15,14 @@ from reachgate.checking.rail import RailPolicy
 from reachgate.errors import ReachgateError
 from reachgate.model.robot import Robot, load_robot, robot_from_dict
 from reachgate.model.trajectory import Trajectory, load_trajectory
+from reachgate.search.placement import PlacementResult, place
 from reachgate.version import __version__
 
 __all__ = [
     "Check",
     "CheckSettings",
     "Placement",
+    "PlacementResult",
     "RailPolicy",
     "ReachgateError",
     "Report",
@@ -33,5 +35,6 @@ __all__ = [
     "check",
     "load_robot",
     "load_trajectory",
+    "place",
     "robot_from_dict",
 ]

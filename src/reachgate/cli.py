@@ -501,6 +501,142 @@ def _quiet_dask_logging() -> None:
             logging.getLogger(name).setLevel(logging.CRITICAL)
 
 
+# --- place ---
+
+
+class PlaceFormat(str, Enum):
+    table = "table"
+    json = "json"
+
+
+def _case_labels(paths) -> list[str]:
+    """Case names for the output: file names, or paths from the cases' common folder."""
+    names = [p.name for p in paths]
+    if len(set(names)) == len(names):
+        return names
+    common = Path(os.path.commonpath([str(p.parent) for p in paths]))
+    return [p.relative_to(common).as_posix() for p in paths]
+
+
+@app.command("place")
+def place_command(
+    robot: Annotated[Path, typer.Argument(help="Robot description (TOML).")],
+    cases: Annotated[
+        list[str],
+        typer.Argument(
+            help="Case files, folders (every *.csv inside) and glob patterns.", show_default=False
+        ),
+    ],
+    vary: Annotated[
+        str,
+        typer.Option(
+            "--vary",
+            help="What may change and how far: 'x=-1:1,y=-2:2,yaw=-45:45' (x y z m, roll "
+            "pitch yaw deg, rail_at m, bandwidth Hz).",
+        ),
+    ],
+    place: PlaceOption = None,
+    rail: RailOption = RailMode.fixed,
+    rail_at: RailAtOption = None,
+    rail_bandwidth: BandwidthOption = DEFAULT_BANDWIDTH_HZ,
+    lag: LagOption = None,
+    lag_tol: LagTolOption = DEFAULT_LAG_TOL_MM,
+    lag_tol_deg: LagTolDegOption = DEFAULT_LAG_TOL_DEG,
+    predict: PredictOption = PredictMode.none,
+    seed: Annotated[int, typer.Option("--seed", help="Seed of the search (repeatable).")] = 0,
+    workers: Annotated[
+        int | None, typer.Option("--workers", help="Local worker processes (default: one per CPU).")
+    ] = None,
+    cluster: Annotated[
+        str | None,
+        typer.Option("--cluster", help="Address of a running Dask scheduler to check the cases."),
+    ] = None,
+    map_png: Annotated[
+        Path | None,
+        typer.Option("--map", help="Write the score over two varied quantities (PNG)."),
+    ] = None,
+    map_over: Annotated[
+        str | None,
+        typer.Option("--map-over", help="The map's two quantities, 'x,yaw' (default: first two)."),
+    ] = None,
+    map_points: Annotated[
+        int, typer.Option("--map-points", help="The map's points along each quantity.")
+    ] = 25,  # = search.placement.MAP_POINTS (not imported: the CLI starts light)
+    quiet: Annotated[bool, typer.Option("--quiet", help="No progress line.")] = False,
+    fmt: Annotated[
+        PlaceFormat, typer.Option("--format", help="Output format.")
+    ] = PlaceFormat.table,
+    out: Annotated[Path | None, typer.Option("--out", help="Write the output here.")] = None,
+) -> None:
+    """Find the placement of the scenario in the cell with the most room on every case."""
+    from contextlib import nullcontext
+
+    from reachgate.batch.scan import discover_cases
+    from reachgate.model.robot import load_robot
+    from reachgate.model.trajectory import load_trajectory
+    from reachgate.render.place_report import ProgressLine, render_placement
+    from reachgate.search.placement import place as search_placement
+    from reachgate.search.vary import check_variations, parse_vary
+
+    variations = _guarded(lambda: parse_vary(vary))
+    quantities = None
+    if map_png is not None:
+        if map_png.suffix.lower() != ".png":
+            _fail_bad_input(f"--map: {map_png}: the picture is written as PNG, name it *.png")
+        names = [v.name for v in variations]
+        chosen = names[:2] if map_over is None else [n.strip() for n in map_over.split(",")]
+        if len(names) < 2 or len(chosen) != 2 or not set(chosen) <= set(names):
+            _fail_bad_input(
+                f"--map needs two of the varied quantities ({', '.join(names)}), "
+                f"got {', '.join(chosen) or 'none'}"
+            )
+        if chosen[0] == chosen[1]:
+            _fail_bad_input("--map-over: name two different quantities")
+        quantities = (names.index(chosen[0]), names.index(chosen[1]))
+    elif map_over is not None:
+        _fail_bad_input("--map-over: give --map FILE.png too")
+    if workers is not None and cluster:
+        _fail_bad_input("--workers and --cluster: give one (the cluster has its own workers)")
+    settings = _guarded(
+        lambda: settings_from_options(
+            place, rail, rail_at, rail_bandwidth, lag, lag_tol, lag_tol_deg, predict
+        )
+    )
+    if cluster:
+        _quiet_dask_logging()
+    model = _guarded(lambda: load_robot(robot))
+    _guarded(lambda: check_variations(model, settings, variations))
+    paths = _guarded(lambda: discover_cases(cases))
+    _refuse_overwriting_inputs(
+        {"--out": out, "--map": map_png},
+        {"robot file": robot, **{f"case {p.name}": p for p in paths}},
+    )
+    paths_loaded = [_guarded(lambda p=p: load_trajectory(p)) for p in paths]
+    show = nullcontext(None) if quiet or not sys.stderr.isatty() else ProgressLine()
+    with show as progress:
+        result = _guarded(
+            lambda: search_placement(
+                model,
+                paths_loaded,
+                variations,
+                settings,
+                labels=_case_labels(paths),
+                seed=seed,
+                workers=workers or os.cpu_count() or 1,
+                cluster=cluster,
+                map_quantities=quantities,
+                map_points=map_points,
+                progress=progress,
+            )
+        )
+    _write_or_print(render_placement(result, fmt.value), out)
+    if map_png is not None:
+        from reachgate.render.place_map import plot_score_map
+
+        _guarded(lambda: plot_score_map(result, map_png))
+    raise typer.Exit(EXIT_PASS if result.passed else EXIT_FAIL)
+
+
 #: Exit code of an interrupted scan: 128 + SIGINT, the shell's convention (common practice).
 EXIT_INTERRUPTED = 130
 #: Exit code of a scan whose Dask scheduler went away or kept no worker (cases kept).

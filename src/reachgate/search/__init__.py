@@ -1,0 +1,1 @@
+"""Placement search: where the scenario fits in the cell (DESIGN §10)."""
