@@ -260,11 +260,10 @@ def place(
         every_case = list(range(len(cases)))
         full_steps = [1] * len(cases)
         report("checking the start", evaluator)
-        start = _candidate(
-            vary, start_values, settings, evaluator.scores([settings], every_case, full_steps)[0]
-        )
+        at_start = evaluator.scores([settings], every_case, full_steps)[0]
+        start = _candidate(vary, start_values, settings, at_start)
         steps = [_coarsest_step(case) for case in cases]
-        active = [labels.index(start.binding.case)] if len(cases) > 1 else [0]
+        active = [min(every_case, key=lambda c: at_start[c].binding.score)]
 
         def scores_at(values: np.ndarray) -> np.ndarray:
             """Scores of placements (S, n_vary) on the binding cases at their steps."""
@@ -338,17 +337,10 @@ def place(
                 break
             population = np.vstack([best_x, population])
 
-        order = np.argsort(found.population_energies)
-        finalists: list[np.ndarray] = []
-        for x in [best_x, *found.population[order]]:
-            x = rounded(vary, x)
-            if not any(np.array_equal(x, y) for y in finalists):
-                finalists.append(x)
-            if len(finalists) == FINALISTS:
-                break
         report("checking the finalists in full", evaluator)
+        finalists = _finalists(vary, best_x, found.population, found.population_energies)
         finalist_settings = [settings_at(settings, vary, x) for x in finalists]
-        full = evaluator.scores(finalist_settings, every_case, [1] * len(cases))
+        full = evaluator.scores(finalist_settings, every_case, full_steps)
         candidates = [
             _candidate(vary, x, s, row)
             for x, s, row in zip(finalists, finalist_settings, full, strict=True)
@@ -379,6 +371,19 @@ def place(
             rounds=rounds,
             score_map=score_map,
         )
+
+
+def _finalists(vary, best_x, population, energies) -> list[np.ndarray]:
+    """The best point and the best of the population, rounded to the printed precision,
+    without repeats: FINALISTS at most."""
+    finalists: list[np.ndarray] = []
+    for x in [best_x, *population[np.argsort(energies)]]:
+        x = rounded(vary, x)
+        if not any(np.array_equal(x, y) for y in finalists):
+            finalists.append(x)
+        if len(finalists) == FINALISTS:
+            break
+    return finalists
 
 
 def _score_map(evaluator, settings, vary, best, quantities, points, active, steps) -> ScoreMap:
