@@ -256,14 +256,14 @@ def perturb_command(
 ) -> None:
     """Write disturbance cases of a nominal path: Dryden turbulence (MIL-F-8785C), for a scan."""
     from reachgate.model.trajectory import load_trajectory
-    from reachgate.motion.disturb import make_disturbance_cases
+    from reachgate.motion.disturb import iter_disturbance_cases
     from reachgate.render.cases import write_case_files
 
     if intensity is None and sigma is None:
         intensity = "moderate"
     path = _guarded(lambda: load_trajectory(nominal))
     cases = _guarded(
-        lambda: make_disturbance_cases(
+        lambda: iter_disturbance_cases(
             path, count, seed, intensity=intensity, sigma_m_s=sigma,
             airspeed_m_s=airspeed, altitude_m=altitude, washout_s=washout,
             response_hz=response_hz,

@@ -33,6 +33,7 @@ from __future__ import annotations
 
 import math
 import numbers
+from collections.abc import Iterator
 from dataclasses import dataclass
 
 import numpy as np
@@ -175,6 +176,11 @@ class GustResponse:
     angle_rad: np.ndarray
 
 
+#: Time steps drawn at once per channel: bounds the per-step transition and noise matrices
+#: (and the prefix scan's copies of them) to this many, whatever the nominal's length.
+DRAW_BLOCK_STEPS = 65_536
+
+
 class _Prepared:
     """Step maps for one time base and settings, shared by every case drawn on it."""
 
@@ -187,7 +193,7 @@ class _Prepared:
             qc = WHITE_NOISE_INTENSITY * np.outer(ch.b, ch.b)
             p0 = solve_continuous_lyapunov(ch.a, -qc)  # every state starts stationary
             ad, ld = _discretise(ch, steps * STEP_QUANTUM_S)
-            self.maps[name] = (ad[self.index], ld[self.index], psd_factor(p0))
+            self.maps[name] = (ad, ld, psd_factor(p0))  # per distinct step; self.index picks
 
     def draw(self, rng: np.random.Generator) -> GustResponse:
         """One realisation; the draws come in a fixed order, so a seed fixes every bit."""
@@ -195,10 +201,18 @@ class _Prepared:
         for name, ch in self.channels.items():
             ad, ld, l0 = self.maps[name]
             n = ch.a.shape[0]
-            x0 = l0 @ rng.standard_normal(n)
-            w = (ld @ rng.standard_normal((len(ad), n, 1)))[:, :, 0]
-            x = propagate(ad, w, x0)
-            out[name] = (x @ ch.c.T, x[:, ch.washout])
+            x = l0 @ rng.standard_normal(n)
+            outputs, washouts = [(x @ ch.c.T)[None]], [x[ch.washout][None]]
+            # Block by block (the draws keep their order, so the stream is the one of a
+            # single pass): the per-step matrices never exist for the whole path at once.
+            for first in range(0, len(self.index), DRAW_BLOCK_STEPS):
+                step = self.index[first : first + DRAW_BLOCK_STEPS]
+                w = (ld[step] @ rng.standard_normal((len(step), n, 1)))[:, :, 0]
+                states = propagate(ad[step], w, x)[1:]
+                outputs.append(states @ ch.c.T)
+                washouts.append(states[:, ch.washout])
+                x = states[-1]
+            out[name] = (np.concatenate(outputs), np.concatenate(washouts))
         (u, dx), (vr, dvr), (wq, dwq), (p, dp) = out["u"], out["vr"], out["wq"], out["p"]
         return GustResponse(
             gust_m_s=np.column_stack([u[:, 0], vr[:, 0], wq[:, 0]]),
@@ -269,7 +283,12 @@ class DisturbanceCase:
         return tuple(f"{key} = {value}" for key, value in self.settings.items())
 
 
-def make_disturbance_cases(
+def make_disturbance_cases(nominal: Trajectory, count: int, seed: int, **options) -> list:
+    """Every case of iter_disturbance_cases in one list (small batches and tests)."""
+    return list(iter_disturbance_cases(nominal, count, seed, **options))
+
+
+def iter_disturbance_cases(
     nominal: Trajectory,
     count: int,
     seed: int,
@@ -281,8 +300,9 @@ def make_disturbance_cases(
     washout_s: float = DEFAULT_WASHOUT_S,
     wingspan_m: float = DEFAULT_WINGSPAN_M,
     response_hz: float = DEFAULT_RESPONSE_HZ,
-) -> list[DisturbanceCase]:
-    """count disturbance cases of the nominal path, numbered 1..count.
+) -> Iterator[DisturbanceCase]:
+    """count disturbance cases of the nominal path, numbered 1..count, made one at a time
+    (memory stays that of one case, whatever count is).
 
     Case i draws from Generator(PCG64(case_seed)) where case_seed comes from
     SeedSequence(seed, spawn_key=(i,)): cases are independent, and case i is the same whatever
@@ -308,7 +328,6 @@ def make_disturbance_cases(
         ),
         "nominal": nominal.name,
         "seed": seed,
-        "count": count,
         "intensity": s.intensity if s.intensity is not None else "none (sigma given)",
         "sigma_u_m_s": s.sigma_u_m_s, "sigma_v_m_s": s.sigma_v_m_s, "sigma_w_m_s": s.sigma_w_m_s,
         "scale_u_m": s.scale_u_m, "scale_v_m": s.scale_v_m, "scale_w_m": s.scale_w_m,
@@ -317,9 +336,13 @@ def make_disturbance_cases(
         "response_hz": float(response_hz), "fade_in_s": FADE_IN_S,
         "gust_axes": "u v w along scenario x y z; p q r about scenario x y z",
     }  # fmt: skip
+    return _cases(nominal, count, seed, prepared, common)
+
+
+def _cases(nominal, count, seed, prepared, common) -> Iterator[DisturbanceCase]:
+    """The cases themselves, one at a time (the options were checked by the caller)."""
     q_nominal = nominal.scenario_q_wxyz
     fade = fade_in(nominal.t_s - nominal.t_s[0])[:, None]
-    cases = []
     for index in range(1, count + 1):
         state = np.random.SeedSequence(seed, spawn_key=(index,)).generate_state(2, np.uint32)
         case_seed = int(state[0]) << 32 | int(state[1])
@@ -331,5 +354,4 @@ def make_disturbance_cases(
             name=f"{nominal.name} case {index}",
         )
         settings = {**common, "case": index, "case_seed": case_seed}
-        cases.append(DisturbanceCase(trajectory, case_seed, settings))
-    return cases
+        yield DisturbanceCase(trajectory, case_seed, settings)

@@ -8,6 +8,8 @@ removes only files whose own comment lines say perturb wrote them.
 
 from __future__ import annotations
 
+import itertools
+from collections.abc import Iterable
 from pathlib import Path
 
 from reachgate.errors import ReachgateError
@@ -18,6 +20,9 @@ from reachgate.render.files import same_file, write_chunks
 #: Recorded settings that do not make a case different: the number and seed of each case,
 #: how many were asked for (case i is the same whatever the count), the program version.
 _SETTINGS_NOT_COMPARED = frozenset({"case", "case_seed", "count", "made_by"})
+
+#: Digits of a case number in its file name, at least (more only past 9999 cases).
+CASE_NUMBER_DIGITS = 4
 
 #: Comment lines read from the top of a file when looking for perturb's record.
 _MAX_HEADER_LINES = 200
@@ -46,7 +51,7 @@ def _differences(recorded: dict[str, str], wanted: dict[str, str]) -> list[str]:
 
 
 def write_case_files(
-    cases: list[DisturbanceCase],
+    cases: Iterable[DisturbanceCase],
     out_dir: str | Path,
     stem: str,
     *,
@@ -54,6 +59,10 @@ def write_case_files(
     inputs: tuple[Path, ...] = (),
 ) -> list[Path]:
     """Write cases as ``out_dir/stem_0001.csv`` ... (numbered by case), each atomically.
+
+    cases may be a generator: each case is written as it comes, so memory stays that of one
+    case. Names have at least four digits, so growing a batch (12 cases, then 13) keeps the
+    names, and the bytes, of the cases written before.
 
     Refuses (ReachgateError) when out_dir holds case files perturb wrote with other settings,
     unless replace is True: then those files, and only those, are removed first; never one of
@@ -63,7 +72,11 @@ def write_case_files(
     out_dir = Path(out_dir)
     if out_dir.exists() and not out_dir.is_dir():
         raise ReachgateError(f"--out {out_dir}: is a file, not a folder")
-    wanted = {key: str(value) for key, value in cases[0].settings.items()} if cases else {}
+    cases = iter(cases)
+    first_case = next(cases, None)
+    if first_case is None:
+        return []
+    wanted = {key: str(value) for key, value in first_case.settings.items()}
     foreign: list[tuple[Path, dict[str, str], list[str]]] = []
     if out_dir.is_dir():
         for existing in sorted(out_dir.glob("*.csv")):
@@ -80,8 +93,6 @@ def write_case_files(
             f"({first.name}: {shown}); mixing them would spoil a scan. Give another folder, "
             "or --replace to remove the cases perturb wrote there"
         )
-    width = max(4, len(str(max((c.settings["case"] for c in cases), default=1))))
-    targets = [out_dir / f"{stem}_{case.settings['case']:0{width}d}.csv" for case in cases]
     for existing, _, _ in foreign:
         if any(same_file(existing, source) for source in inputs):
             raise ReachgateError(
@@ -94,6 +105,8 @@ def write_case_files(
             existing.unlink()
     except OSError as error:
         raise ReachgateError(f"{out_dir}: cannot prepare the folder ({error.strerror})") from None
-    for case, target in zip(cases, targets, strict=True):
-        write_chunks(target, trajectory_csv_chunks(case.trajectory, case.header_lines))
+    targets = []
+    for case in itertools.chain([first_case], cases):
+        targets.append(out_dir / f"{stem}_{case.settings['case']:0{CASE_NUMBER_DIGITS}d}.csv")
+        write_chunks(targets[-1], trajectory_csv_chunks(case.trajectory, case.header_lines))
     return targets
