@@ -165,3 +165,19 @@ def test_joints_out_leaves_samples_out_of_reach_empty_and_marked(tmp_path):
     q = np.radians(np.array(kept, dtype=float))
     T = forward(robot, q)
     np.testing.assert_allclose(T[:, :3, 3], path.scenario_p_m[reachable], atol=1e-9)
+
+
+def test_a_nan_that_reaches_the_report_stops_the_json_with_its_key():
+    """DESIGN §6: the JSON never holds NaN or Infinity. A NaN put into a finished report's
+    margins (as a fault upstream would) stops the writing with one message naming the key,
+    instead of a NaN in the file or a traceback."""
+    from dataclasses import replace
+
+    robot = offset_wrist_arm()
+    path, _ = _pushed_case(robot, 0.3, (0.0, 0.0), seed=5104)
+    report = reachgate.check(robot, path)
+    json.loads(report.to_json(), parse_constant=_reject_constant)
+    margins = {axis: dict(values) for axis, values in report.margins.items()}
+    margins["j3"]["speed"] = float("nan")
+    with pytest.raises(reachgate.ReachgateError, match=r"report\.margins\.j3\.speed"):
+        replace(report, margins=margins).to_json()

@@ -160,8 +160,33 @@ class Report:
         }
 
     def to_json(self, indent: int | None = 2) -> str:
-        # allow_nan=False: a NaN or infinity that slipped through is an error, never written
-        return json.dumps(self.as_dict(), indent=indent, allow_nan=False)
+        """The report as JSON. A NaN or infinity that slipped through is never written (DESIGN
+        §6): it stops the program with the key that holds it."""
+        document = self.as_dict()
+        where = _first_non_finite(document)
+        if where is not None:
+            raise ReachgateError(
+                f"{self.trajectory}: the report holds a value that is not a finite number at "
+                f"{where}; nothing written (a fault of the program: please report it)"
+            )
+        return json.dumps(document, indent=indent, allow_nan=False)
+
+
+def _first_non_finite(node, path: str = "report") -> str | None:
+    """The key path of the first NaN or infinity in a JSON-ready document, or None."""
+    if isinstance(node, float):
+        return None if math.isfinite(node) else path
+    if isinstance(node, dict):
+        children = ((f"{path}.{key}", value) for key, value in node.items())
+    elif isinstance(node, list):
+        children = ((f"{path}[{i}]", value) for i, value in enumerate(node))
+    else:
+        return None
+    for child_path, value in children:
+        found = _first_non_finite(value, child_path)
+        if found is not None:
+            return found
+    return None
 
 
 def _untrusted(mask: np.ndarray) -> np.ndarray:
@@ -424,7 +449,7 @@ def _singularity_rows(
     # unreachable samples are masked below; finite values keep the measures finite there
     q = np.where(np.isfinite(solution.q), solution.q, robot.home)
     named = set()
-    if not measures:
+    if not measures and th.conditioning_min > 0:
         measures["conditioning"] = conditioning(robot, q)
         floors["conditioning"], units["conditioning"] = th.conditioning_min, "1"
         named.add("conditioning")
