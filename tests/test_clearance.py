@@ -7,6 +7,7 @@ import math
 import numpy as np
 import pytest
 
+from reachgate.checking import clearance as clearance_module
 from reachgate.checking.clearance import (
     ClearanceSettings,
     PlacedRobot,
@@ -59,11 +60,20 @@ def rod_to_post_m(angle_rad: np.ndarray) -> np.ndarray:
     return gap - ROD_RADIUS_M - POST_RADIUS_M
 
 
-def test_a_thin_payload_sweeping_through_a_link_between_samples_is_caught():
+@pytest.mark.parametrize(
+    ("chunk", "levels"), [(None, None), (3, (1,))], ids=["default", "step-across-chunks"]
+)
+def test_a_thin_payload_sweeping_through_a_link_between_samples_is_caught(
+    monkeypatch, chunk, levels
+):
     """At 25 Hz the rod turns 0.9 rad per step and crosses the post inside one step while
     every sampled distance is clear (above near_m). Truth: the analytic joint path resampled
     densely (200,001 points) with the analytic distance. The Schwarzer–Saha–Latombe bound
-    flags the step and bisection finds a pose closer than min_m inside it."""
+    flags the step and bisection finds a pose closer than min_m inside it; also when that
+    step joins two chunks of work."""
+    if chunk is not None:
+        monkeypatch.setattr(clearance_module, "CHUNK_SAMPLES", chunk)
+        monkeypatch.setattr(clearance_module, "BLOCK_LEVELS", levels)
     robots = sweep_rig()
     settings = ClearanceSettings(min_m=0.05, near_m=0.15)
     plan = plan_pairs(robots, (), settings)
@@ -205,10 +215,19 @@ def test_pairs_follow_design_rules_with_reasons():
             contact=frozenset({frozenset({"table.wing", "floor"})})))  # fmt: skip
 
 
-def test_broad_phase_and_blocks_give_the_rows_of_an_exhaustive_evaluation():
+@pytest.mark.parametrize(
+    ("chunk", "levels"), [(None, None), (640, (64, 16, 2))], ids=["default", "small-chunks"]
+)
+def test_broad_phase_and_blocks_give_the_rows_of_an_exhaustive_evaluation(
+    monkeypatch, chunk, levels
+):
     """Two arms moving on random smooth paths at 500 Hz: the rows, margins and near series
     equal those of evaluating every checked pair at every sample (no block skipped), so the
-    broad phase only skips what is farther than near_m. Half-space and box pairs included."""
+    broad phase only skips what is farther than near_m. Half-space and box pairs included;
+    with small chunks too, so rows run across the chunks of work."""
+    if chunk is not None:
+        monkeypatch.setattr(clearance_module, "CHUNK_SAMPLES", chunk)
+        monkeypatch.setattr(clearance_module, "BLOCK_LEVELS", levels)
     robots, obstacles = two_arm_rig()
     settings = ClearanceSettings(0.05, 0.30)
     plan = plan_pairs(robots, obstacles, settings)
