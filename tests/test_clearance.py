@@ -299,3 +299,17 @@ def test_settings_refuse_a_near_band_below_min():
         ClearanceSettings(min_m=0.1, near_m=0.05)
     with pytest.raises(ReachgateError, match="min_m"):
         ClearanceSettings(min_m=0.0, near_m=0.05)
+
+
+def test_a_shape_name_used_twice_or_a_foreign_pair_is_refused():
+    """Two robots under one rig name would make every report name ambiguous; a plan made for
+    another rig names shapes this one lacks. Both stop with one clear message."""
+    robots, obstacles = two_arm_rig()
+    twins = (robots[0], PlacedRobot("carrier", robots[1].robot, robots[1].rig_T_cell))
+    with pytest.raises(ReachgateError, match=r"used twice: carrier\.base"):
+        plan_pairs(twins, obstacles, ClearanceSettings())
+    settings = ClearanceSettings()
+    plan = plan_pairs(robots, obstacles, settings)
+    q = {p.name: p.robot.home[None, :] for p in robots}
+    with pytest.raises(ReachgateError, match="not of this rig"):
+        check_clearance(np.zeros(1), robots[:1], q, obstacles, plan, settings)

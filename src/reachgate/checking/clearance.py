@@ -167,6 +167,10 @@ class _Scene:
         self.obstacles = tuple(obstacles)
         self.shapes = _shapes(self.robots, self.obstacles)
         self.by_name = {shape.name: shape for shape in self.shapes}
+        if len(self.by_name) != len(self.shapes):
+            names = [shape.name for shape in self.shapes]
+            twice = sorted({name for name in names if names.count(name) > 1})
+            raise ReachgateError(f"clearance: shape names used twice: {', '.join(twice)}")
         self.bounds = [motion_bounds(placed.robot) for placed in self.robots]
         self.fixed = [(obstacle_primitive(o),) for o in self.obstacles]
 
@@ -372,6 +376,8 @@ def check_clearance(
             scene.bounds[r] = motion_bounds(scene.robots[r].robot, travel)
     states = []
     for a_name, b_name in plan.checked:
+        if a_name not in scene.by_name or b_name not in scene.by_name:
+            raise ReachgateError(f"clearance: the pair {a_name}/{b_name} is not of this rig")
         a, b = scene.by_name[a_name], scene.by_name[b_name]
         stream = IntervalStream(
             settings.near_m - settings.min_m,
