@@ -8,12 +8,20 @@ from __future__ import annotations
 import math
 import os
 import sys
-from collections.abc import Callable
+import warnings
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
 from enum import Enum
 from pathlib import Path
 from typing import Annotated, TypeVar
 
 import typer
+from typer.core import TyperGroup
+
+try:  # typer carries its own copy of click since 0.2x
+    from typer._click.exceptions import NoArgsIsHelpError, UsageError
+except ImportError:  # pragma: no cover - older typer on the real click
+    from click.exceptions import NoArgsIsHelpError, UsageError
 
 from reachgate.checking.lag import DEFAULT_LAG_TOL_RAD
 from reachgate.checking.pipeline import DEFAULT_LAG_TOL_M
@@ -23,7 +31,39 @@ from reachgate.errors import ClusterLostError, ReachgateError
 DEFAULT_LAG_TOL_MM = DEFAULT_LAG_TOL_M * 1000.0
 DEFAULT_LAG_TOL_DEG = round(math.degrees(DEFAULT_LAG_TOL_RAD), 9)
 
+
+@contextmanager
+def _one_line_errors() -> Iterator[None]:
+    """A wrong command line as one stderr line and exit 2 (click prints Usage / Try / Error),
+    and no numeric warning (overflow, invalid value) on the terminal: every result that
+    matters is judged by the checks, never read from a warning."""
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)
+            yield
+    except NoArgsIsHelpError:
+        raise
+    except UsageError as error:
+        where = f" (see: {error.ctx.command_path} --help)" if error.ctx else ""
+        message = " ".join(error.format_message().replace("Value error, ", "").split())
+        print(f"reachgate: error: {message}{where}", file=sys.stderr)
+        raise typer.Exit(EXIT_BAD_INPUT) from None
+
+
+class _OneLineErrors(TyperGroup):
+    """The command group, its usage errors and warnings handled by _one_line_errors."""
+
+    def make_context(self, *args, **kwargs):
+        with _one_line_errors():
+            return super().make_context(*args, **kwargs)
+
+    def invoke(self, ctx):
+        with _one_line_errors():
+            return super().invoke(ctx)
+
+
 app = typer.Typer(
+    cls=_OneLineErrors,
     add_completion=False,
     no_args_is_help=True,
     pretty_exceptions_enable=False,

@@ -7,6 +7,7 @@ table converts exactly, because Rx(α)·Tx(a) commutes and regroups into standar
 
 from __future__ import annotations
 
+import difflib
 import math
 import tomllib
 from dataclasses import dataclass
@@ -215,6 +216,64 @@ def _rot_x_trans_x(alpha: float, a: float) -> np.ndarray:
 # --- loading -------------------------------------------------------------------------------
 
 
+@dataclass(frozen=True)
+class PlausibleBound:
+    """The magnitudes a value of one unit may take in a robot cell; others are refused as
+    typing errors. lowest: the smallest positive value of a limit (0: no floor)."""
+
+    lowest: float
+    highest: float
+    why: str
+
+
+#: Plausible bounds by the unit suffix of a key (common practice: the spec sheets of
+#: industrial arms, rails and gantries fall well inside them; they are our choice, not a
+#: standard). They catch 1e300 or a limit of 1e-9, never a real cell.
+PLAUSIBLE = {
+    "m": PlausibleBound(0.0, 100.0, "long rails and gantries run to a few tens of metres"),
+    "deg": PlausibleBound(0.0, 3600.0, "ten turns; even endless axes are given a few turns"),
+    "deg_s": PlausibleBound(0.01, 1e4, "industrial joints run at about 1 to 1000 deg/s"),
+    "deg_s2": PlausibleBound(0.01, 1e6, "industrial joints accelerate at about 10 to 10^5 deg/s^2"),
+    "deg_s3": PlausibleBound(0.01, 1e8, "joint jerk limits lie about 10 to 100 times the accel"),
+    "m_s": PlausibleBound(1e-4, 100.0, "rails and linear axes run at about 0.01 to 10 m/s"),
+    "m_s2": PlausibleBound(1e-4, 1e3, "rails and linear axes accelerate at about 0.1 to 100 m/s^2"),
+    "m_s3": PlausibleBound(1e-4, 1e5, "linear jerk limits lie about 10 to 100 times the accel"),
+}
+
+
+def _unit_suffix(key: str) -> str | None:
+    """The PLAUSIBLE unit a key ends in (vmax_deg_s -> deg_s, a_m -> m), else None."""
+    for unit in sorted(PLAUSIBLE, key=len, reverse=True):
+        if key.endswith("_" + unit):
+            return unit
+    return None
+
+
+#: Keys each table accepts, for messages (the loader below reads exactly these).
+POSE_KEYS = ("xyz_m", "rpy_deg")
+
+
+def _axis_keys(unit: str) -> tuple[str, ...]:
+    return (f"range_{unit}", f"vmax_{unit}_s", f"amax_{unit}_s2", f"jmax_{unit}_s3", f"home_{unit}")
+
+
+RAIL_KEYS = ("frame", *_axis_keys("m"))
+JOINT_KEYS = {
+    "revolute": ("name", "type", "a_m", "alpha_deg", "d_m", "offset_deg", *_axis_keys("deg")),
+    "prismatic": ("name", "type", "a_m", "alpha_deg", "offset_m", "theta_deg", *_axis_keys("m")),
+}
+THRESHOLD_KEYS = (
+    "position_margin_deg",
+    "position_margin_mm",
+    "rate_margin_fraction",
+    "wrist_min_deg",
+    "elbow_min_deg",
+    "shoulder_min_m",
+    "manipulability_min",
+)
+TOP_KEYS = ("name", "convention", "rail", "mount", "joints", "tool", "thresholds")
+
+
 class _Table:
     """A TOML table with the file name and key path, for messages that say where a fault is."""
 
@@ -223,6 +282,7 @@ class _Table:
             raise ReachgateError(f"{file}: {path or 'top level'} must be a table, got {data!r}")
         self.data, self.file, self.path = data, file, path
         self.used: set[str] = set()
+        self.accepted: tuple[str, ...] = ()
 
     def key(self, name: str) -> str:
         return f"{self.path}.{name}" if self.path else name
@@ -234,9 +294,43 @@ class _Table:
         self.used.add(name)
         if name not in self.data:
             if default is ...:
-                raise self.fail(name, "missing")
+                raise self.fail(name, "missing" + self._unknown_like(name))
             return default
         return self.data[name]
+
+    def _accepted_text(self) -> str:
+        keys = list(dict.fromkeys([*self.accepted, *sorted(self.used)]))
+        return f"accepted here: {', '.join(keys)}"
+
+    def _unknown_like(self, missing: str) -> str:
+        """', and range_mm is not a key ...' when the table holds an unknown key like missing."""
+        known = set(self.accepted) | self.used
+        stem = missing.split("_")[0]
+        unknown = [k for k in self.data if k not in known]
+        alike = [k for k in unknown if k.split("_")[0] == stem]
+        alike += difflib.get_close_matches(missing, [k for k in unknown if k not in alike], 1)
+        if not alike:
+            return ""
+        return f"; the table has the unknown key {alike[0]} instead ({self._accepted_text()})"
+
+    def _plausible(self, name: str, value: float) -> None:
+        unit = _unit_suffix(name)
+        if unit is None:
+            return
+        bound = PLAUSIBLE[unit]
+        shown = unit.replace("_s", "/s", 1).replace("/s2", "/s^2").replace("/s3", "/s^3")
+        if abs(value) > bound.highest:
+            raise self.fail(
+                name,
+                f"{value:g} {shown} is not plausible for a robot cell (at most "
+                f"{bound.highest:g} {shown}: {bound.why}); check the value and its unit",
+            )
+        if 0 < abs(value) < bound.lowest:
+            raise self.fail(
+                name,
+                f"{value:g} {shown} is not plausible for a robot axis (at least "
+                f"{bound.lowest:g} {shown}: {bound.why}); check the value and its unit",
+            )
 
     def number(self, name: str, default: Any = ..., positive: bool = False) -> float:
         value = self.get(name, default)
@@ -248,6 +342,7 @@ class _Table:
             raise self.fail(name, f"must be finite, got {value!r}")
         if positive and value <= 0:
             raise self.fail(name, f"must be positive, got {value!r}")
+        self._plausible(name, value)
         return float(value)
 
     def vector(self, name: str, length: int, default: Any = ...) -> tuple[float, ...]:
@@ -260,6 +355,8 @@ class _Table:
             raise self.fail(name, f"must be a list of {length} numbers, got {value!r}")
         if not all(math.isfinite(v) for v in value):
             raise self.fail(name, f"must hold finite numbers, got {value!r}")
+        for v in value:
+            self._plausible(name, v)
         return tuple(float(v) for v in value)
 
     def text(self, name: str, default: Any = ...) -> str:
@@ -277,10 +374,14 @@ class _Table:
     def reject_unknown(self) -> None:
         unknown = sorted(set(self.data) - self.used)
         if unknown:
-            raise self.fail(unknown[0], "unknown key (check its spelling and unit suffix)")
+            raise self.fail(
+                unknown[0],
+                f"unknown key (check its spelling and unit suffix; {self._accepted_text()})",
+            )
 
 
 def _pose(table: _Table) -> np.ndarray:
+    table.accepted = POSE_KEYS
     xyz = table.vector("xyz_m", 3, default=[0.0, 0.0, 0.0])
     rpy = table.vector("rpy_deg", 3, default=[0.0, 0.0, 0.0])
     table.reject_unknown()
@@ -318,6 +419,7 @@ def _joint(table: _Table, index: int) -> tuple[DHRow, Axis, float | None]:
         kind = JointKind(kind_text)
     except ValueError:
         raise table.fail("type", f"must be 'revolute' or 'prismatic', got {kind_text!r}") from None
+    table.accepted = JOINT_KEYS[kind.value]
     a = table.number("a_m")
     alpha = math.radians(table.number("alpha_deg"))
     if kind is JointKind.REVOLUTE:
@@ -336,6 +438,7 @@ def _thresholds(table: _Table | None) -> Thresholds:
     defaults = Thresholds()
     if table is None:
         return defaults
+    table.accepted = THRESHOLD_KEYS
     deg = math.pi / 180.0
 
     def value(key: str, default_si: float, scale: float = 1.0) -> float:
@@ -477,6 +580,7 @@ def _geometry(
 def robot_from_dict(data: dict[str, Any], source: str = "<dict>") -> Robot:
     """Validate a parsed robot description (the TOML structure of DESIGN §3) into a Robot."""
     top = _Table(data, source, "")
+    top.accepted = TOP_KEYS
     name = top.text("name")
     convention_text = top.text("convention", default="standard")
     try:
@@ -490,6 +594,7 @@ def robot_from_dict(data: dict[str, Any], source: str = "<dict>") -> Robot:
     cell_T_rail = np.eye(4)
     rail_table = top.table("rail", optional=True)
     if rail_table is not None:
+        rail_table.accepted = RAIL_KEYS
         frame = rail_table.get("frame", default={})
         cell_T_rail = _pose(_Table(frame, source, rail_table.key("frame")))
         rail = _axis(rail_table, "rail", JointKind.PRISMATIC)
@@ -537,6 +642,14 @@ def robot_from_dict(data: dict[str, Any], source: str = "<dict>") -> Robot:
     )
 
 
+def looks_like_csv(text: str) -> bool:
+    """True when the first line that is not a '#' comment or blank is a header with t_s."""
+    for line in text.splitlines():
+        if line.strip() and not line.lstrip().startswith("#"):
+            return "t_s" in line and ("," in line or ";" in line or "\t" in line)
+    return False
+
+
 def load_robot(path: str | Path) -> Robot:
     """Load and validate a robot TOML file. Raises ReachgateError naming file, key and value."""
     path = Path(path)
@@ -551,14 +664,25 @@ def load_robot(path: str | Path) -> Robot:
         raise ReachgateError(f"{label}: cannot read ({error.strerror})") from None
     if not raw.strip():
         raise ReachgateError(f"{label}: the file is empty")
+    if b"\x00" in raw:
+        raise ReachgateError(f"{label}: binary data (NUL bytes), not a text file")
     try:
-        text = raw.decode("utf-8")
+        text = raw.decode("utf-8").removeprefix("\ufeff")  # a byte-order mark some editors write
     except UnicodeDecodeError as error:
+        line = raw.count(b"\n", 0, error.start) + 1
+        line_start = raw.rfind(b"\n", 0, error.start) + 1
+        column = len(raw[line_start : error.start].decode("utf-8", errors="replace")) + 1
         raise ReachgateError(
-            f"{label}: not a text file (byte {error.start} is not UTF-8)"
+            f"{label} line {line}, column {column}: byte 0x{raw[error.start]:02x} is not UTF-8 "
+            "text; save the file as UTF-8 (it may be Latin-1 or Windows-1252)"
         ) from None
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as error:
+        if looks_like_csv(text):
+            raise ReachgateError(
+                f"{label}: this looks like a trajectory (CSV with a t_s column), not a robot "
+                "file (TOML); are the arguments swapped?"
+            ) from None
         raise ReachgateError(f"{label}: not valid TOML ({error})") from None
     return robot_from_dict(data, source=label)

@@ -11,6 +11,7 @@ accepts files that the scan would accept with the same values.
 
 from __future__ import annotations
 
+import csv
 import math
 import sys
 import warnings
@@ -339,10 +340,34 @@ def _decode_line(raw: bytes, label: str, line_no: int) -> str:
         return raw.decode("utf-8")
     except UnicodeDecodeError as error:
         bad = raw[error.start : error.start + 1]
+        column = len(raw[: error.start].decode("utf-8", errors="replace")) + 1
         raise ReachgateError(
-            f"{label} line {line_no}: not UTF-8 text (byte 0x{bad.hex()} at byte "
-            f"{error.start + 1} of the line); is this a CSV file?"
+            f"{label} line {line_no}, column {column}: byte 0x{bad.hex()} is not UTF-8 text; "
+            f"{ENCODING_ADVICE}"
         ) from None
+
+
+#: What to do about a file in another encoding (a spreadsheet's Latin-1 or Windows-1252).
+ENCODING_ADVICE = (
+    "save the file as UTF-8 (it may be Latin-1 or Windows-1252, as some spreadsheets write)"
+)
+
+#: Separators people use instead of the comma, by the name a message gives them.
+_WRONG_SEPARATORS = {";": "semicolon ';'", "\t": "tab", "|": "vertical bar '|'"}
+
+
+def _header_names(text: str, label: str, line_no: int) -> list[str]:
+    """Column names of a header line: comma separated, each optionally in double quotes as
+    RFC 4180 allows ("t_s","x_m"); a header that uses another separator is refused by name."""
+    if "," not in text:
+        for separator, name in _WRONG_SEPARATORS.items():
+            if separator in text:
+                raise ReachgateError(
+                    f"{label} line {line_no}: columns are separated by {name}, not by commas; "
+                    "reachgate reads comma-separated files (export the file as CSV with ',')"
+                )
+    names = next(csv.reader([text]))
+    return [name.strip() for name in names]
 
 
 def _read_header(path: Path, label: str) -> tuple[int, list[str]]:
@@ -350,13 +375,14 @@ def _read_header(path: Path, label: str) -> tuple[int, list[str]]:
     try:
         if path.stat().st_size == 0:
             raise ReachgateError(f"{label}: file is empty")
+        _refuse_cr_only_line_ends(path, label)
         with path.open("rb") as handle:
             for line_no, raw in enumerate(handle, start=1):
                 text = _decode_line(raw, label, line_no)
                 if line_no == 1:
                     text = text.removeprefix("\ufeff")  # byte-order mark some editors write
                 if not _is_skipped(text):
-                    return line_no, [name.strip() for name in text.split(",")]
+                    return line_no, _header_names(text.rstrip("\r\n"), label, line_no)
     except FileNotFoundError:
         raise ReachgateError(f"{label}: file not found") from None
     except IsADirectoryError:
@@ -364,6 +390,17 @@ def _read_header(path: Path, label: str) -> tuple[int, list[str]]:
     except PermissionError:
         raise ReachgateError(f"{label}: cannot read the file (permission denied)") from None
     raise ReachgateError(f"{label}: no header line (the file holds only comments or blank lines)")
+
+
+def _refuse_cr_only_line_ends(path: Path, label: str) -> None:
+    """A file whose lines end in CR alone (classic Mac OS) reads as one line: say so."""
+    with path.open("rb") as handle:
+        start = handle.read(1 << 16)
+    if b"\r" in start and b"\n" not in start:
+        raise ReachgateError(
+            f"{label}: lines end in a carriage return (CR) alone, an old Mac OS format; "
+            "save the file with LF or CR LF line ends"
+        )
 
 
 def import_fast_reader() -> bool:
@@ -483,8 +520,9 @@ def _ignored_field(text: str) -> float:
 
 
 def _parse_number(text: str) -> float | None:
-    """float(text), or None if text is not a plain decimal number (float() also takes '1_0')."""
-    if not text or "_" in text:
+    """float(text), or None if text is not a plain decimal number (float() also takes '1_0'
+    and digits of other scripts, such as '١')."""
+    if not text or "_" in text or not text.isascii():
         return None
     try:
         return float(text)
@@ -535,6 +573,8 @@ def _scan_values(path: Path, label: str, header_line: int, columns: _Columns):
             if value is None:
                 if not field_text:
                     fail(f"{where}: empty value")
+                if not field_text.isascii():
+                    fail(f"{where}: {field_text!r} is not a number (only the ASCII digits 0-9)")
                 fail(f"{where}: {field_text!r} is not a number")
             if not math.isfinite(value):
                 fail(f"{where}: {field_text!r} is not a finite number")
