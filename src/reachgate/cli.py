@@ -137,7 +137,11 @@ BandwidthOption = Annotated[
 ]
 LagOption = Annotated[float | None, typer.Option("--lag", help="Loop delay of the rig, s.")]
 LagTolOption = Annotated[
-    float, typer.Option("--lag-tol", help="Tracking error the delay may cause, mm.")
+    float | None,
+    typer.Option(
+        "--lag-tol",
+        help=f"Tracking error the delay may cause, mm (with --lag; default {DEFAULT_LAG_TOL_MM:g})",
+    ),
 ]
 
 
@@ -170,21 +174,39 @@ def settings_from_options(
     lag_tol_deg=DEFAULT_LAG_TOL_DEG,
     predict=PredictMode.none,
 ):
-    """CheckSettings from the shared check/scan options (SI inside)."""
+    """CheckSettings from the shared check/scan options (SI inside).
+
+    Refuses options that would be ignored: --lag-tol without --lag, --rail-at with
+    --rail follow (the carriage then moves; --rail-at fixes it).
+    """
     from reachgate.checking.lag import Prediction
     from reachgate.checking.pipeline import CheckSettings, Placement
     from reachgate.checking.rail import RailPolicy
 
+    _refuse_ignored_rail_at(rail, rail_at)
+    if lag_tol is not None and lag is None:
+        raise ReachgateError(
+            "--lag-tol: the lag check runs only with --lag S (the rig's loop delay); "
+            "give --lag, or leave out --lag-tol"
+        )
     return CheckSettings(
         placement=Placement() if place is None else Placement.parse(place),
         rail=RailPolicy(rail.value),
         rail_at_m=rail_at,
         rail_bandwidth_hz=rail_bandwidth,
         lag_s=lag,
-        lag_tol_m=lag_tol / 1000.0,
+        lag_tol_m=DEFAULT_LAG_TOL_M if lag_tol is None else lag_tol / 1000.0,
         lag_tol_rad=math.radians(lag_tol_deg),
         predict=Prediction(predict.value),
     )
+
+
+def _refuse_ignored_rail_at(rail, rail_at) -> None:
+    if rail_at is not None and rail is RailMode.follow:
+        raise ReachgateError(
+            f"--rail-at {rail_at:g}: fixes the carriage, but --rail follow moves it with the "
+            "path (around the rail's home); give one or the other"
+        )
 
 
 # --- check ---
@@ -199,7 +221,7 @@ def check_command(
     rail_at: RailAtOption = None,
     rail_bandwidth: BandwidthOption = DEFAULT_BANDWIDTH_HZ,
     lag: LagOption = None,
-    lag_tol: LagTolOption = DEFAULT_LAG_TOL_MM,
+    lag_tol: LagTolOption = None,
     lag_tol_deg: LagTolDegOption = DEFAULT_LAG_TOL_DEG,
     predict: PredictOption = PredictMode.none,
     fmt: Annotated[
@@ -336,7 +358,17 @@ def envelope_command(
         str, typer.Option("--freq-range", help="Lowest and highest frequency, 'low,high' in Hz.")
     ] = "0.1,10",
     freqs: Annotated[int, typer.Option("--freqs", help="Number of log-spaced frequencies.")] = 13,
+    place: Annotated[
+        str | None,
+        typer.Option(
+            "--place",
+            help="Scenario frame in the cell 'x,y,z,roll,pitch,yaw' (m, deg): x,y,z then move "
+            "along the scenario's axes.",
+        ),
+    ] = None,
     rail: RailOption = RailMode.fixed,
+    rail_at: RailAtOption = None,
+    rail_bandwidth: BandwidthOption = DEFAULT_BANDWIDTH_HZ,
     fmt: Annotated[
         OutputFormat, typer.Option("--format", help="Envelope format.")
     ] = OutputFormat.table,
@@ -346,6 +378,7 @@ def envelope_command(
     ] = None,
 ) -> None:
     """Largest sinusoid amplitude the arm can follow around a pose, per direction and frequency."""
+    from reachgate.checking.pipeline import Placement
     from reachgate.checking.rail import RailPolicy
     from reachgate.model.robot import load_robot
     from reachgate.motion.envelope import (
@@ -359,6 +392,8 @@ def envelope_command(
     directions = _guarded(lambda: parse_directions(axes))
     frequencies = _guarded(lambda: frequencies_from_range(freq_range, freqs))
     cell_T_pose = None if pose is None else _guarded(lambda: parse_pose(pose))
+    placement = None if place is None else _guarded(lambda: Placement.parse(place))
+    _guarded(lambda: _refuse_ignored_rail_at(rail, rail_at))
     if plot is not None and plot.suffix.lower() != ".png":
         _fail_bad_input(f"--plot: {plot}: the picture is written as PNG, name it *.png")
     _refuse_overwriting_inputs({"--out": out, "--plot": plot}, {"robot file": robot})
@@ -370,6 +405,9 @@ def envelope_command(
             directions=directions,
             frequencies_hz=frequencies,
             rail=RailPolicy(rail.value),
+            placement=placement,
+            rail_at_m=rail_at,
+            rail_bandwidth_hz=rail_bandwidth,
         )
     )
     _write_or_print(render_envelope(result, fmt.value), out)
@@ -401,7 +439,7 @@ def scan_command(
     rail_at: RailAtOption = None,
     rail_bandwidth: BandwidthOption = DEFAULT_BANDWIDTH_HZ,
     lag: LagOption = None,
-    lag_tol: LagTolOption = DEFAULT_LAG_TOL_MM,
+    lag_tol: LagTolOption = None,
     lag_tol_deg: LagTolDegOption = DEFAULT_LAG_TOL_DEG,
     predict: PredictOption = PredictMode.none,
     store: Annotated[

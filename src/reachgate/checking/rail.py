@@ -80,7 +80,8 @@ def rail_positions(
     """Rail carriage positions (N,) in m for TCP positions (N, 3) in the scenario frame,
     placed in the cell by cell_T_scenario (4, 4), or None.
 
-    fixed: every sample at rail_at_m (default the rail's home). follow: the TCP's coordinate
+    fixed: every sample at rail_at_m (default the rail's home); rail_at_m must lie on the rail
+    whatever the policy (follow does not use it). follow: the TCP's coordinate
     along the rail axis, low-pass filtered, minus the TCP's along-rail offset from the carriage
     at the arm's home pose, so that the arm works around home on average. Positions are
     clipped to the rail's range (a target beyond it then shows as arm reach or limit rows).
@@ -91,12 +92,12 @@ def rail_positions(
         return None
     rail = robot.rail
     n = scenario_p_tcp.shape[0]
+    at = rail.home if rail_at_m is None else float(rail_at_m)
+    if not rail.lower <= at <= rail.upper:  # whatever the policy: a wrong number is wrong
+        raise ReachgateError(
+            f"--rail-at: {at:g} m is outside the rail range [{rail.lower:g}, {rail.upper:g}] m"
+        )
     if policy is RailPolicy.FIXED:
-        at = rail.home if rail_at_m is None else float(rail_at_m)
-        if not rail.lower <= at <= rail.upper:
-            raise ReachgateError(
-                f"--rail-at: {at:g} m is outside the rail range [{rail.lower:g}, {rail.upper:g}] m"
-            )
         return np.full(n, at)
     if not (math.isfinite(bandwidth_hz) and bandwidth_hz > 0):
         raise ReachgateError(

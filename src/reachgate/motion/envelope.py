@@ -19,13 +19,13 @@ from __future__ import annotations
 
 import json
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from enum import Enum
 
 import numpy as np
 
 from reachgate.checking.intervals import Check, Severity, Violation
-from reachgate.checking.pipeline import CheckSettings, check
+from reachgate.checking.pipeline import CheckSettings, Placement, check
 from reachgate.checking.rail import DEFAULT_BANDWIDTH_HZ, RailPolicy
 from reachgate.errors import ReachgateError
 from reachgate.kinematics.chain import forward
@@ -160,6 +160,7 @@ class Envelope:
     directions: tuple[DirectionEnvelope, ...]
     checks_run: int
     samples_per_period: int
+    settings: dict = field(default_factory=dict)  # the options that shaped it, SI
 
     def along(self, direction: Direction) -> DirectionEnvelope:
         for item in self.directions:
@@ -176,6 +177,7 @@ class Envelope:
                 "rpy_deg": [float(v) for v in np.degrees(matrix_to_rpy(self.cell_T_operating))],
             },
             "rail": self.rail.value,
+            "settings": self.settings,
             "rel_tol": self.rel_tol,
             "signal": {
                 "ramp_periods": RAMP_PERIODS,
@@ -318,14 +320,14 @@ class _Runner:
     def __init__(
         self,
         robot: Robot,
-        cell_T_operating: np.ndarray,
+        scenario_T_operating: np.ndarray,
         directions: tuple[Direction, ...],
         tests: _Tests,
         settings: CheckSettings,
         settle_s: float,
         q_operating: np.ndarray,
     ) -> None:
-        self.robot, self.cell_T_operating = robot, cell_T_operating
+        self.robot, self.scenario_T_operating = robot, scenario_T_operating
         self.directions, self.tests = directions, tests
         self.settings, self.settle_s = settings, settle_s
         self.q_operating = q_operating
@@ -337,7 +339,7 @@ class _Runner:
     def _assemble(self, which: np.ndarray, amplitudes: np.ndarray):
         """Joined trajectory of tests `which` (k,) at amplitudes (k,).
 
-        -> (t (N,), cell_T_tool (N, 4, 4), steady windows (k, 2) in s, first samples (k,)).
+        -> (t (N,), scenario_T_tool (N, 4, 4), steady windows (k, 2) in s, first samples (k,)).
         """
         dts = self.tests.dt_s[which]
         steps = [np.full(REST_EDGE_SAMPLES, dts[0])]
@@ -374,23 +376,22 @@ class _Runner:
         rotating = moving & kinds[sample_dir]
         translating = moving & ~kinds[sample_dir]
         n = t.size
-        cell_T_tool = np.broadcast_to(self.cell_T_operating, (n, 4, 4)).copy()
+        scenario_T_tool = np.broadcast_to(self.scenario_T_operating, (n, 4, 4)).copy()
         shift = np.zeros((n, 3))
         shift[translating, axis[sample_dir[translating]]] = value[translating]
-        cell_T_tool[:, :3, 3] += shift
+        scenario_T_tool[:, :3, 3] += shift
         if rotating.any():
             turn = _axis_rotations(axis[sample_dir[rotating]], value[rotating])
-            cell_T_tool[rotating, :3, :3] = self.cell_T_operating[:3, :3] @ turn
-        return t, cell_T_tool, steady, first
+            scenario_T_tool[rotating, :3, :3] = self.scenario_T_operating[:3, :3] @ turn
+        return t, scenario_T_tool, steady, first
 
     def run(
         self, which: np.ndarray, amplitudes: np.ndarray
     ) -> tuple[np.ndarray, list[Violation | None]]:
         """Check tests `which` (k,) at amplitudes (k,) -> (passed (k,), limiting row or None)."""
-        t, cell_T_tool, steady, first = self._assemble(which, amplitudes)
-        path = Trajectory.from_arrays(
-            t, cell_T_tool[:, :3, 3], matrix_to_quat(cell_T_tool[:, :3, :3]), name="envelope"
-        )
+        t, scenario_T_tool, steady, first = self._assemble(which, amplitudes)
+        rotations = matrix_to_quat(scenario_T_tool[:, :3, :3])
+        path = Trajectory.from_arrays(t, scenario_T_tool[:, :3, 3], rotations, name="envelope")
         report = check(self.robot, path, self.settings)
         self.calls += 1
         worst: list[Violation | None] = [None] * which.size
@@ -458,6 +459,10 @@ def home_pose(robot: Robot) -> np.ndarray:
     return forward(robot, robot.home[None])[0]
 
 
+#: The check options an envelope uses (the rest concern a commanded path's delay).
+_ENVELOPE_SETTINGS = ("place_xyz_m", "place_rpy_deg", "rail", "rail_at_m", "rail_bandwidth_hz")
+
+
 def envelope(
     robot: Robot,
     *,
@@ -466,12 +471,17 @@ def envelope(
     frequencies_hz: np.ndarray | None = None,
     rail: RailPolicy = RailPolicy.FIXED,
     rel_tol: float = REL_TOL,
+    placement: Placement | None = None,
+    rail_at_m: float | None = None,
+    rail_bandwidth_hz: float = DEFAULT_BANDWIDTH_HZ,
 ) -> Envelope:
     """Amplitude–frequency envelope around an operating pose (default: the home TCP pose).
 
     cell_T_operating: (4, 4) TCP pose in the cell; frequencies_hz: (F,) positive, default
-    DEFAULT_FREQ_COUNT log-spaced over DEFAULT_FREQ_RANGE_HZ. Raises ReachgateError when the
-    arm cannot even hold the operating pose.
+    DEFAULT_FREQ_COUNT log-spaced over DEFAULT_FREQ_RANGE_HZ. placement: the scenario frame in
+    the cell (as check's --place): the directions x, y, z are then the scenario's axes (default
+    the cell's). rail_at_m, rail_bandwidth_hz: as in CheckSettings. Raises ReachgateError when
+    the arm cannot even hold the operating pose.
     """
     if rail is RailPolicy.FOLLOW and robot.rail is None:
         raise ReachgateError(f"--rail: robot {robot.name!r} ({robot.source}) has no rail")
@@ -485,12 +495,17 @@ def envelope(
     frequencies_hz = np.asarray(frequencies_hz, dtype=float)
     if frequencies_hz.ndim != 1 or not np.all(np.isfinite(frequencies_hz) & (frequencies_hz > 0)):
         raise ReachgateError("frequencies must be a (F,) array of positive numbers in Hz")
-    settings = CheckSettings(rail=rail)
+    placement = Placement() if placement is None else placement
+    settings = CheckSettings(
+        placement=placement, rail=rail, rail_at_m=rail_at_m, rail_bandwidth_hz=rail_bandwidth_hz
+    )
     settle_s = 0.0
     if rail is RailPolicy.FOLLOW:
-        settle_s = SETTLE_TIME_CONSTANTS / (2.0 * math.pi * DEFAULT_BANDWIDTH_HZ)
+        settle_s = SETTLE_TIME_CONSTANTS / (2.0 * math.pi * rail_bandwidth_hz)
+    # The test paths are scenario paths: around the operating pose seen from the scenario frame.
+    scenario_T_operating = np.linalg.inv(placement.cell_T_scenario()) @ pose
 
-    q_operating = _hold_operating_pose(robot, pose, settings)
+    q_operating = _hold_operating_pose(robot, scenario_T_operating, settings)
     n_f = frequencies_hz.size
     tests = _Tests(
         direction=np.repeat(np.arange(len(directions)), n_f),
@@ -500,7 +515,9 @@ def envelope(
     rotation = np.array([directions[i].is_rotation for i in tests.direction])
     low = np.where(rotation, MIN_AMPLITUDE_RAD, MIN_AMPLITUDE_M)
     high = np.where(rotation, MAX_AMPLITUDE_RAD, translation_bound_m(robot, rail))
-    runner = _Runner(robot, pose, directions, tests, settings, settle_s, q_operating)
+    runner = _Runner(
+        robot, scenario_T_operating, directions, tests, settings, settle_s, q_operating
+    )
 
     # Bisection on log amplitude; the bracket ends are checked only if the search never moves
     # off them, which spares checking absurd amplitudes in the common case.
@@ -558,6 +575,7 @@ def envelope(
         directions=tuple(results),
         checks_run=runner.calls + 1,
         samples_per_period=runner.per_period,
+        settings={k: v for k, v in settings.as_dict().items() if k in _ENVELOPE_SETTINGS},
     )
 
 
