@@ -51,6 +51,8 @@ def test_json_report_has_the_design_keys():
         "violations",
         "margins",
         "slowdown",
+        "settings",
+        "inputs",
     }
     assert report["robot"] == "demo rail arm"
     assert report["trajectory"] == "approach_gusty.csv"

@@ -237,6 +237,7 @@ def check_command(
     ] = None,
 ) -> None:
     """Check one case: can the arm follow every sample of the trajectory?"""
+    from reachgate.batch.scan import file_sha256
     from reachgate.checking.pipeline import check
     from reachgate.model.robot import load_robot
     from reachgate.model.trajectory import load_trajectory
@@ -254,7 +255,8 @@ def check_command(
     model = _guarded(lambda: load_robot(robot))
     path = _guarded(lambda: load_trajectory(trajectory))
     report = _guarded(lambda: check(model, path, settings))
-    _write_or_print(render(report, fmt.value), out)
+    inputs = {"robot_sha256": file_sha256(robot), "trajectory_sha256": file_sha256(trajectory)}
+    _write_or_print(render(report, fmt.value, inputs), out)
     if joints_out is not None:
         _guarded(lambda: write_joints(report, joints_out, model.axes))
     if plot is not None:

@@ -157,6 +157,7 @@ class Report:
             "violations": [v.as_dict() for v in self.violations],
             "margins": self.margins,
             "slowdown": self.slowdown,
+            "settings": self.settings.as_dict(),
         }
 
     def to_json(self, indent: int | None = 2) -> str:

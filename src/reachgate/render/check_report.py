@@ -7,14 +7,16 @@ from __future__ import annotations
 
 import csv
 import io
+import json
 import math
 from pathlib import Path
 
 import numpy as np
 
-from reachgate.checking.intervals import ROW_KEYS, Severity
+from reachgate.checking.intervals import ROW_KEYS, Check, Severity
 from reachgate.checking.pipeline import Report
 from reachgate.render.files import atomic_output
+from reachgate.render.terminal import plain_table, table_width, tidy, wrap_items, wrap_text
 
 SAFETY_CAUTIONS = (
     "A pass here is not a safety validation of the cell or the path.",
@@ -114,10 +116,8 @@ def _rows_to_show(rows, max_rows: int):
 
 def _group_table(report: Report):
     """One line per (check, axis): row counts, first start, last end, worst and its limit."""
-    from rich import box
-    from rich.table import Table
 
-    table = Table(box=box.ASCII, pad_edge=False)
+    table = plain_table()
     for title in (
         "check",
         "axis",
@@ -161,12 +161,14 @@ def _margin_text(values: dict, key: str) -> str:
     return "not measured" if values[key] is None else f"{values[key]:.2f}"
 
 
-def render_table(report: Report, width: int = 110, max_rows: int = TABLE_MAX_ROWS) -> str:
+def render_table(report: Report, width: int | None = None, max_rows: int = TABLE_MAX_ROWS) -> str:
     """The colour-free text report: verdict, interval rows, margins, advice, cautions."""
-    from rich import box
-    from rich.table import Table
 
-    console, buffer = plain_console(width)
+    console, buffer = plain_console(width or table_width())
+
+    def say(text: str, first: str = "") -> None:
+        console.print(wrap_text(text, console.width, first), soft_wrap=True)
+
     n_viol = sum(v.severity is Severity.VIOLATION for v in report.violations)
     n_near = len(report.violations) - n_viol
     s = report.settings
@@ -177,17 +179,20 @@ def render_table(report: Report, width: int = 110, max_rows: int = TABLE_MAX_ROW
         rail += f" at {s.rail_at_m:g} m"
     branch = report.solution.branch.describe() if report.solution.branch else "kept from home"
     console.print(f"reachgate {report.tool_version}: {report.robot} / {report.trajectory}")
-    console.print(
-        f"{report.samples} samples over {report.duration_s:.3f} s; rail {rail}; "
-        f"solver {report.solution.solver.value}; branch {branch}"
-    )
+    header = [
+        f"{report.samples} samples over {report.duration_s:.3f} s",
+        f"rail {rail}",
+        f"solver {report.solution.solver.value}",
+        f"branch {branch}",
+    ]
+    console.print(wrap_items(header, console.width), soft_wrap=True)
     for note in report.notes:
-        console.print(f"note: {note}")
+        say(note, "note: ")
     verdict = "PASS" if report.passed else "FAIL"
     console.print(f"verdict: {verdict} ({n_viol} violation rows, {n_near} near rows)")
 
     if report.violations:
-        rows = Table(box=box.ASCII, show_edge=True, pad_edge=False)
+        rows = plain_table()
         for title in (
             "check",
             "axis",
@@ -225,24 +230,52 @@ def render_table(report: Report, width: int = 110, max_rows: int = TABLE_MAX_ROW
                 "--format csv or json); every row, grouped by check and axis:"
             )
             console.print(_group_table(report))
+        for text in branch_explanations(report):
+            say(text, "branch: ")
 
-    margins = Table(box=box.ASCII, title=None, pad_edge=False)
+    margins = plain_table()
     margins.add_column("axis")
     keys = ("position", "speed", "accel", "jerk")
     for key in keys:
         margins.add_column(f"{key} left", justify="right")
     for axis, values in report.margins.items():
         margins.add_row(axis, *(_margin_text(values, k) for k in keys))
-    console.print(
+    say(
         "margins: fraction of each limit left over the run "
         "(1 unused, 0 at it, < 0 beyond; not measured: no sample to measure it on)"
     )
     console.print(margins)
-    console.print(f"advice: {advice(report)}")
+    say(advice(report), "advice: ")
     console.print("cautions:")
     for line in SAFETY_CAUTIONS:
-        console.print(f"  - {line}")
-    return buffer.getvalue()
+        say(line, "  - ")
+    return tidy(buffer.getvalue())
+
+
+def branch_explanations(report: Report) -> list[str]:
+    """What each branch row means, in words: the joints the kept configuration takes out of
+    their ranges there (from the position rows over the same time) and the way out."""
+    kept = report.solution.branch.describe() if report.solution.branch else None
+    kept_text = f"the configuration kept from home ({kept})" if kept else "the kept configuration"
+    positions = [
+        v for v in report.violations
+        if v.check is Check.POSITION and v.severity is Severity.VIOLATION
+    ]  # fmt: skip
+    texts = []
+    for row in (v for v in report.violations if v.check is Check.BRANCH):
+        joints = sorted(
+            {p.axis for p in positions if p.start_s <= row.end_s and p.end_s >= row.start_s}
+        )
+        beyond, unit = display(row.worst, row.unit)
+        texts.append(
+            f"from {row.start_s:.3f} s to {row.end_s:.3f} s {kept_text} takes "
+            f"{', '.join(joints) or 'a joint'} out of its range, up to {beyond} {unit} beyond "
+            f"it (the row's worst; limit 0: no excess allowed). Another configuration (other "
+            "shoulder, elbow or wrist sign) keeps every joint in range there, but the arm "
+            "cannot change configuration in mid-path: start from a home in that "
+            "configuration, or move the placement."
+        )
+    return texts
 
 
 def render_csv(report: Report) -> str:
@@ -253,12 +286,18 @@ def render_csv(report: Report) -> str:
     for v in report.violations:
         d = v.as_dict()
         writer.writerow([repr(d[c]) if isinstance(d[c], float) else d[c] for c in CSV_COLUMNS])
-    return buffer.getvalue()
+    return tidy(buffer.getvalue())
 
 
-def render(report: Report, fmt: str) -> str:
+def render(report: Report, fmt: str, inputs: dict[str, str] | None = None) -> str:
+    """The report as table, json or csv text. inputs: the sha256 of each input file by
+    name ('robot_sha256', 'trajectory_sha256'), recorded in the JSON (DESIGN §6)."""
     if fmt == "json":
-        return report.to_json() + "\n"
+        if not inputs:
+            return report.to_json() + "\n"
+        document = json.loads(report.to_json())
+        document["inputs"] = inputs
+        return json.dumps(document, indent=2) + "\n"
     if fmt == "csv":
         return render_csv(report)
     return render_table(report)

@@ -17,6 +17,7 @@ from reachgate.kinematics.path_ik import solver_kind
 from reachgate.kinematics.singularity import characteristic_length_m
 from reachgate.model.robot import Robot
 from reachgate.model.transforms import matrix_to_rpy
+from reachgate.render.terminal import fixed, plain_table, table_width, tidy, wrap_items
 
 #: Random configurations used to estimate the TCP's reach from the base (seeded, repeatable).
 REACH_SAMPLES = 20000
@@ -37,18 +38,16 @@ def sampled_reach_m(robot: Robot) -> float:
 
 def describe_robot(robot: Robot) -> str:
     """A plain-text page describing a validated robot."""
-    from rich import box
-    from rich.table import Table
 
     from reachgate.render.check_report import plain_console
 
-    console, buffer = plain_console(110)
+    console, buffer = plain_console(table_width())
     console.print(f"robot: {robot.name} ({robot.source})")
     console.print(
         f"DH convention: {robot.convention.value}; {len(robot.joints)} arm joints; "
         f"rail: {'yes' if robot.has_rail else 'no'}"
     )
-    dh = Table(box=box.ASCII, pad_edge=False, title=None)
+    dh = plain_table()
     for column in ("joint", "type", "a mm", "alpha deg", "d mm", "theta offset deg"):
         dh.add_column(column, justify="left" if column in ("joint", "type") else "right")
     for joint, row in zip(robot.joints, robot.rows, strict=True):
@@ -66,7 +65,7 @@ def describe_robot(robot: Robot) -> str:
         )
     console.print(dh)
 
-    limits = Table(box=box.ASCII, pad_edge=False)
+    limits = plain_table()
     for column in ("axis", "unit", "min", "max", "home", "vmax /s", "amax /s^2", "jmax /s^3"):
         limits.add_column(column, justify="left" if column in ("axis", "unit") else "right")
     for axis in robot.axes:
@@ -87,10 +86,11 @@ def describe_robot(robot: Robot) -> str:
     home = forward(robot, robot.home[None])[0]
     rpy = np.degrees(matrix_to_rpy(home[:3, :3]))
     xyz = home[:3, 3] * 1000
-    console.print(
-        f"home TCP in the cell: x {xyz[0]:.1f} y {xyz[1]:.1f} z {xyz[2]:.1f} mm, "
-        f"roll {rpy[0]:.2f} pitch {rpy[1]:.2f} yaw {rpy[2]:.2f} deg"
-    )
+    items = [
+        f"home TCP in the cell: x {xyz[0]:.1f} y {xyz[1]:.1f} z {xyz[2]:.1f} mm",
+        f"roll {fixed(rpy[0])} pitch {fixed(rpy[1])} yaw {fixed(rpy[2])} deg",
+    ]
+    console.print(wrap_items(items, console.width, ", "), soft_wrap=True)
     spherical = is_spherical_wrist(robot.chain)
     meet = "meet in one point" if wrist_axes_meet(robot.chain) else "do not meet in one point"
     console.print(f"wrist axes: 4, 5 and 6 {meet}")
@@ -116,17 +116,20 @@ def describe_robot(robot: Robot) -> str:
             "along the rail frame's +x"
         )
     th = robot.thresholds
-    console.print(
+    items = [
         f"thresholds: position margin {math.degrees(th.position_margin_rad):.2f} deg / "
-        f"{th.position_margin_m * 1000:.1f} mm, rate margin {th.rate_margin_fraction:.0%}, "
-        f"wrist {math.degrees(th.wrist_min_rad):.1f} deg, "
-        f"elbow {math.degrees(th.elbow_min_rad):.1f} deg, "
-        f"shoulder {th.shoulder_min_m * 1000:.0f} mm, "
-        f"manipulability floor {th.manipulability_min:g}"
-    )
+        f"{th.position_margin_m * 1000:.1f} mm",
+        f"rate margin {th.rate_margin_fraction:.0%}",
+        f"wrist {math.degrees(th.wrist_min_rad):.1f} deg",
+        f"elbow {math.degrees(th.elbow_min_rad):.1f} deg",
+        f"shoulder {th.shoulder_min_m * 1000:.0f} mm",
+        f"manipulability floor {th.manipulability_min:g}",
+    ]
+    console.print(wrap_items(items, console.width, ", "), soft_wrap=True)
     if not spherical:
-        console.print(
-            f"singularities: scale-free measure on every sample, floor {th.conditioning_min:g} "
-            f"(characteristic length {characteristic_length_m(robot) * 1000:.0f} mm)"
-        )
-    return buffer.getvalue()
+        items = [
+            f"singularities: scale-free measure on every sample, floor {th.conditioning_min:g}",
+            f"(characteristic length {characteristic_length_m(robot) * 1000:.0f} mm)",
+        ]
+        console.print(wrap_items(items, console.width, ""), soft_wrap=True)
+    return tidy(buffer.getvalue())

@@ -19,6 +19,7 @@ from reachgate.motion.envelope import (
     Envelope,
 )
 from reachgate.render.check_report import plain_console
+from reachgate.render.terminal import fixed, plain_table, table_width, tidy, wrap_items
 from reachgate.version import __version__
 
 
@@ -37,28 +38,26 @@ def _cell(item: DirectionEnvelope, k: int) -> str:
     return f"{value:.4g} {item.limiting_check[k]} {item.limiting_axis[k]}"
 
 
-def render_envelope_table(result: Envelope, width: int = 160) -> str:
+def render_envelope_table(result: Envelope, width: int | None = None) -> str:
     """Colour-free table: one row per frequency, one column per direction (mm or deg)."""
-    from rich import box
-    from rich.table import Table
 
-    console, buffer = plain_console(width)
+    console, buffer = plain_console(width or table_width())
     xyz_mm = result.cell_T_operating[:3, 3] * 1000.0
     rpy_deg = np.degrees(matrix_to_rpy(result.cell_T_operating))
     console.print(f"reachgate {__version__}: envelope of {result.robot}")
-    console.print(
-        "operating pose (cell): "
-        + ", ".join(f"{v:.1f}" for v in xyz_mm)
-        + " mm; roll, pitch, yaw "
-        + ", ".join(f"{v:.2f}" for v in rpy_deg)
-        + f" deg; rail {result.rail.value}"
-    )
-    console.print(
-        f"sinusoid: {RAMP_PERIODS} ramp + {STEADY_PERIODS} steady + {RAMP_PERIODS} ramp "
-        f"periods, {result.samples_per_period} samples per period; amplitude to "
-        f"{result.rel_tol * 100:g} % by bisection ({result.checks_run} check runs)"
-    )
-    table = Table(box=box.ASCII, show_edge=True, pad_edge=False)
+    items = [
+        "operating pose (cell): " + ", ".join(fixed(v, 1) for v in xyz_mm) + " mm",
+        "roll, pitch, yaw " + ", ".join(fixed(v) for v in rpy_deg) + " deg",
+        f"rail {result.rail.value}",
+    ]
+    console.print(wrap_items(items, console.width), soft_wrap=True)
+    items = [
+        f"sinusoid: {RAMP_PERIODS} ramp + {STEADY_PERIODS} steady + {RAMP_PERIODS} ramp periods",
+        f"{result.samples_per_period} samples per period",
+        f"amplitude to {result.rel_tol * 100:g} % by bisection ({result.checks_run} check runs)",
+    ]
+    console.print(wrap_items(items, console.width), soft_wrap=True)
+    table = plain_table()
     table.add_column("f Hz", justify="right")
     for item in result.directions:
         table.add_column(f"{item.direction.value} {_shown(item.direction)[0]}", justify="left")
@@ -70,7 +69,7 @@ def render_envelope_table(result: Envelope, width: int = 160) -> str:
         "then the check and axis that fail just above it. Translations along cell axes, "
         "rotations about the TCP's own axes."
     )
-    return buffer.getvalue()
+    return tidy(buffer.getvalue())
 
 
 CSV_COLUMNS = ("direction", "frequency_hz", "amplitude", "unit", "bounded", "check", "axis")
@@ -94,7 +93,7 @@ def render_envelope_csv(result: Envelope) -> str:
                     item.limiting_axis[k],
                 ]
             )
-    return buffer.getvalue()
+    return tidy(buffer.getvalue())
 
 
 def render_envelope(result: Envelope, fmt: str) -> str:

@@ -11,6 +11,7 @@ from reachgate.batch.scan import ScanProgress
 from reachgate.batch.store import CaseResult, CaseVerdict, ScanSummary
 from reachgate.checking.intervals import RATE_CHECKS, Severity
 from reachgate.render.check_report import SAFETY_CAUTIONS, plain_console
+from reachgate.render.terminal import plain_table, table_width, tidy, wrap_items, wrap_text
 from reachgate.version import __version__
 
 
@@ -48,14 +49,17 @@ def _margin_text(c: CaseResult) -> str:
     return f"{c.worst_margin:.2f} ({c.worst_margin_axis} {c.worst_margin_limit})"
 
 
-def render_table(summary: ScanSummary, width: int = 120) -> str:
+def render_table(summary: ScanSummary, width: int | None = None) -> str:
     """Colour-free summary: ranked cases, counts per check, errors, cautions."""
-    from rich import box
-    from rich.table import Table
 
-    console, buffer = plain_console(width, soft_wrap=True)
+    console, buffer = plain_console(width or table_width(), soft_wrap=True)
+
+    def say(text: str, first: str = "") -> None:
+        console.print(wrap_text(text, console.width, first))
+
     tally = summary.tally()
-    console.print(f"reachgate {__version__} scan, results store {summary.store_path}")
+    items = [f"reachgate {__version__} scan", f"results store {summary.store_path}"]
+    console.print(wrap_items(items, console.width, ", "))
     console.print(
         f"{len(summary.cases)} cases: "
         f"{tally['pass']} pass, {tally['fail']} fail, {tally['error']} error"
@@ -66,12 +70,10 @@ def render_table(summary: ScanSummary, width: int = 120) -> str:
         )
     robots = sorted({c.robot_name or "?" for c in summary.cases})
     setups = {settings_text(c.settings) for c in summary.cases}
-    console.print(f"robot: {', '.join(robots)}")
-    console.print(
-        "settings: " + (setups.pop() if len(setups) == 1 else "differ between cases (see json)")
-    )
-    console.print("ranked worst first: errors, failing cases, passing cases, by worst margin")
-    table = Table(box=box.ASCII, pad_edge=False)
+    say(", ".join(robots), "robot: ")
+    say(setups.pop() if len(setups) == 1 else "differ between cases (see json)", "settings: ")
+    say("ranked worst first: errors, failing cases, passing cases, by worst margin")
+    table = plain_table()
     titles = ("#", "case", "verdict", "worst margin", "first violation from", "worst violation at")
     for title in titles:
         table.add_column(title, justify="right" if title == "#" else "left")
@@ -92,13 +94,11 @@ def render_table(summary: ScanSummary, width: int = 120) -> str:
             slow,
         )
     console.print(table)
-    console.print("margins: fraction of a limit left (1 unused, 0 at it, < 0 beyond)")
+    say("margins: fraction of a limit left (1 unused, 0 at it, < 0 beyond)")
     if starred:
-        console.print(
-            "slow-down*: clears the speed, accel and jerk rows only; other violations remain"
-        )
+        say("slow-down*: clears the speed, accel and jerk rows only; other violations remain")
     if summary.counts:
-        counts = Table(box=box.ASCII, pad_edge=False)
+        counts = plain_table()
         for title in ("check", "violation rows", "near rows", "failing cases"):
             counts.add_column(title, justify="left" if title == "check" else "right")
         for kind, n in summary.counts.items():
@@ -109,11 +109,11 @@ def render_table(summary: ScanSummary, width: int = 120) -> str:
     if errors:
         console.print("errors:")
         for c in errors:
-            console.print(f"  - {c.name}: {c.error}")
+            say(f"{c.name}: {c.error}", "  - ")
     console.print("cautions:")
     for line in SAFETY_CAUTIONS:
-        console.print(f"  - {line}")
-    return buffer.getvalue()
+        say(line, "  - ")
+    return tidy(buffer.getvalue())
 
 
 CSV_COLUMNS = (
@@ -122,7 +122,7 @@ CSV_COLUMNS = (
     "verdict",
     "worst_margin",
     "worst_margin_axis",
-    "worst_margin_limit",
+    "worst_margin_check",
     "first_check",
     "first_axis",
     "first_start_s",
@@ -168,7 +168,7 @@ def render_csv(summary: ScanSummary) -> str:
         writer.writerow(
             ["" if v is None else repr(v) if isinstance(v, float) else v for v in values]
         )
-    return buffer.getvalue()
+    return tidy(buffer.getvalue())
 
 
 def render_summary(summary: ScanSummary, fmt: str = "table") -> str:
