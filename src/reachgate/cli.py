@@ -432,7 +432,7 @@ def scan_command(
     cases: Annotated[
         list[str] | None,
         typer.Argument(
-            help="Case files, folders (every *.csv inside, recursively) and glob patterns.",
+            help="Case files, folders (every .csv, .parquet, .feather inside) and globs.",
             show_default=False,
         ),
     ] = None,

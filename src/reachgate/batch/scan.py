@@ -39,6 +39,7 @@ from reachgate.checking.intervals import Check, Severity
 from reachgate.checking.pipeline import CheckSettings, check
 from reachgate.checking.rail import rail_positions
 from reachgate.errors import ClusterLostError, ReachgateError
+from reachgate.model.columnar import COLUMNAR_SUFFIXES
 from reachgate.model.robot import Robot, load_robot, robot_from_dict
 from reachgate.model.trajectory import import_fast_reader, load_trajectory
 from reachgate.version import __version__
@@ -57,8 +58,8 @@ __all__ = [
 
 #: Store file name used when --store is not given (in the cases' common folder).
 DEFAULT_STORE_NAME = "reachgate_scan.sqlite"
-#: What a folder contributes: every file with this suffix inside it, recursively.
-CASE_SUFFIX = ".csv"
+#: What a folder contributes: every file with one of these endings inside it, recursively.
+CASE_SUFFIXES = (".csv", *COLUMNAR_SUFFIXES)
 #: Cases handed out per worker ahead of time: keeps workers busy, and keeps the work lost
 #: to an interruption small.
 IN_FLIGHT_PER_WORKER = 2
@@ -103,8 +104,8 @@ def discover_cases(patterns: Iterable[str | Path]) -> tuple[Path, ...]:
 
     def add(path: Path) -> None:
         if path.is_dir():
-            for inner in sorted(path.rglob(f"*{CASE_SUFFIX}")):
-                if inner.is_file():
+            for inner in sorted(path.rglob("*")):
+                if inner.is_file() and inner.suffix.lower() in CASE_SUFFIXES:
                     found.setdefault(inner.resolve(), None)
         elif path.is_file():
             found.setdefault(path.resolve(), None)
@@ -119,7 +120,9 @@ def discover_cases(patterns: Iterable[str | Path]) -> tuple[Path, ...]:
             raise ReachgateError(f"{pattern}: no such case file or folder")
     if not found:
         shown = ", ".join(patterns) if patterns else "(none given)"
-        raise ReachgateError(f"no case found in {shown} (folders give their *{CASE_SUFFIX} files)")
+        raise ReachgateError(
+            f"no case found in {shown} (folders give their {', '.join(CASE_SUFFIXES)} files)"
+        )
     return tuple(found)
 
 

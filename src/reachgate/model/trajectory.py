@@ -23,6 +23,7 @@ from typing import NoReturn
 import numpy as np
 
 from reachgate.errors import ReachgateError
+from reachgate.model.columnar import column_values, is_columnar, read_table
 from reachgate.model.transforms import UNIT_QUATERNION_TOL, quat_to_matrix, transform
 
 #: A quaternion whose length is already this close to 1 is kept bit for bit instead of being
@@ -606,13 +607,17 @@ def _raise_sample_fault(
 
 
 def load_trajectory(path: str | Path) -> Trajectory:
-    """Load and validate a trajectory CSV (DESIGN §4). Raises ReachgateError on bad input.
+    """Load and validate a trajectory: CSV (DESIGN §4), or Parquet or Arrow IPC (Feather)
+    with the same columns (by the name's ending, model/columnar.py). Raises ReachgateError
+    on bad input.
 
     Returns t_s (N,), scenario_p_m (N, 3) in m and scenario_q_wxyz (N, 4) unit quaternions;
     name is the file name, ignored_columns the header names that were not read.
     """
     path = Path(path)
     label = str(path)
+    if is_columnar(path):
+        return _load_columnar(path, label)
     header_line, names = _read_header(path, label)
     try:
         columns = _map_columns(names)
@@ -625,6 +630,34 @@ def load_trajectory(path: str | Path) -> Trajectory:
     if values is None or _first_fault(values, quaternion_at) is not None:
         values, line_numbers = _scan_values(path, label, header_line, columns)
         _raise_sample_fault(values, line_numbers, columns, label)
+    return _trajectory_from_values(values, columns, path.name)
+
+
+def _load_columnar(path: Path, label: str) -> Trajectory:
+    """A Parquet or Arrow IPC trajectory: the CSV's columns and rules, faults named by row."""
+    table = read_table(path, label)
+    names = [str(name).strip() for name in table.column_names]
+    try:
+        columns = _map_columns(names)
+    except _HeaderError as error:
+        where = f", column {error.column}" if error.column else ""
+        raise ReachgateError(f"{label}{where}: {error.text}") from None
+    values = column_values(table, columns.names, columns.use, label)
+    if values.shape[0] < 2:
+        raise ReachgateError(f"{label}: {values.shape[0]} rows; a trajectory needs at least 2")
+    fault = _first_fault(values, 4 if columns.has_quaternion else None)
+    if fault is not None:
+        row, col, text = fault
+        if columns.has_quaternion and col == 4:
+            where = "columns " + ",".join(_QUAT_COLUMNS)
+        else:
+            where = "column " + columns.names[columns.use[col]]
+        raise ReachgateError(f"{label} row {row + 1}, {where}: {text}")
+    return _trajectory_from_values(values, columns, path.name)
+
+
+def _trajectory_from_values(values: np.ndarray, columns: _Columns, name: str) -> Trajectory:
+    """A Trajectory from the used columns (N, 7 or 8) in file units, already validated."""
     t_s = np.ascontiguousarray(values[:, 0])
     p_m = values[:, 1:4] * columns.length_scale
     if columns.has_quaternion:
@@ -635,7 +668,7 @@ def load_trajectory(path: str | Path) -> Trajectory:
         t_s=t_s,
         scenario_p_m=p_m,
         scenario_q_wxyz=q,
-        name=path.name,
+        name=name,
         ignored_columns=columns.ignored,
     )
 
