@@ -259,9 +259,11 @@ def _axis_keys(unit: str) -> tuple[str, ...]:
 
 RAIL_KEYS = ("frame", *_axis_keys("m"))
 JOINT_KEYS = {
-    "revolute": ("name", "type", "a_m", "alpha_deg", "d_m", "offset_deg", *_axis_keys("deg")),
-    "prismatic": ("name", "type", "a_m", "alpha_deg", "offset_m", "theta_deg", *_axis_keys("m")),
-}
+    "revolute": ("name", "type", "a_m", "alpha_deg", "d_m", "offset_deg", *_axis_keys("deg"),
+                 "link_radius_m"),
+    "prismatic": ("name", "type", "a_m", "alpha_deg", "offset_m", "theta_deg", *_axis_keys("m"),
+                  "link_radius_m"),
+}  # fmt: skip
 THRESHOLD_KEYS = (
     "position_margin_deg",
     "position_margin_mm",
@@ -271,7 +273,7 @@ THRESHOLD_KEYS = (
     "shoulder_min_m",
     "manipulability_min",
 )
-TOP_KEYS = ("name", "convention", "rail", "mount", "joints", "tool", "thresholds")
+TOP_KEYS = ("name", "convention", "rail", "mount", "joints", "tool", "thresholds", "payload")
 
 
 class _Table:
