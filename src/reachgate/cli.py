@@ -215,7 +215,7 @@ def _refuse_ignored_rail_at(rail, rail_at) -> None:
 @app.command("check")
 def check_command(
     robot: Annotated[Path, typer.Argument(help="Robot description (TOML).")],
-    trajectory: Annotated[Path, typer.Argument(help="Trajectory (CSV).")],
+    trajectory: Annotated[Path, typer.Argument(help="Trajectory (CSV, Parquet or Arrow IPC).")],
     place: PlaceOption = None,
     rail: RailOption = RailMode.fixed,
     rail_at: RailAtOption = None,
