@@ -131,5 +131,5 @@ def describe_robot(robot: Robot) -> str:
             f"singularities: scale-free measure on every sample, floor {th.conditioning_min:g}",
             f"(characteristic length {characteristic_length_m(robot) * 1000:.0f} mm)",
         ]
-        console.print(wrap_items(items, console.width, ""), soft_wrap=True)
+        console.print(wrap_items(items, console.width, " "), soft_wrap=True)
     return tidy(buffer.getvalue())
