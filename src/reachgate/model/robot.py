@@ -272,6 +272,7 @@ THRESHOLD_KEYS = (
     "elbow_min_deg",
     "shoulder_min_m",
     "manipulability_min",
+    "conditioning_min",
 )
 TOP_KEYS = ("name", "convention", "rail", "mount", "joints", "tool", "thresholds", "payload")
 
