@@ -18,7 +18,7 @@ from reachgate.model.robot import robot_from_dict
 from conftest import REPO
 
 REFERENCE = REPO / "docs" / "reference.md"
-DOCUMENTED_COMMANDS = ("check", "scan", "perturb", "envelope", "robot", "delay")
+DOCUMENTED_COMMANDS = ("check", "scan", "perturb", "envelope", "robot", "delay", "place")
 
 
 def reference_text() -> str:
@@ -103,6 +103,7 @@ def test_every_option_of_the_command_is_in_the_reference(command):
     text = reference_text()
     section = text.split(f"### `reachgate {command}", 1)[1].split("\n### ", 1)[0]
     shared = text.split("### `reachgate check", 1)[1].split("\n### ", 1)[0]
+    shared += text.split("### `reachgate scan", 1)[1].split("\n### ", 1)[0]
     options = [o for p in group.commands[command].params for o in p.opts if o.startswith("--")]
     missing = [o for o in options if not (mentioned(o, section) or mentioned(o, shared))]
     assert not missing, f"{command}: options missing from docs/reference.md: {missing}"

@@ -620,7 +620,7 @@ def place_command(
     rail_at: RailAtOption = None,
     rail_bandwidth: BandwidthOption = DEFAULT_BANDWIDTH_HZ,
     lag: LagOption = None,
-    lag_tol: LagTolOption = DEFAULT_LAG_TOL_MM,
+    lag_tol: LagTolOption = None,
     lag_tol_deg: LagTolDegOption = DEFAULT_LAG_TOL_DEG,
     predict: PredictOption = PredictMode.none,
     seed: Annotated[int, typer.Option("--seed", help="Seed of the search (repeatable).")] = 0,
