@@ -556,11 +556,12 @@ def _geometry(
         parts.append(Part("base", 0, Attach.BASE, pedestal))
     for i, (row, joint, radius) in enumerate(zip(rows, joints, link_radii, strict=True)):
         name = f"link{i + 1}"
+        offsets = _link_offsets(convention, row, joint)
+        if not offsets:  # both offsets zero: the row adds no length, nothing to describe
+            continue
         if radius is None:
             missing.append(name)
-            continue
-        offsets = _link_offsets(convention, row, joint)
-        if offsets:  # both offsets zero: the row adds no length, so no capsule (not missing)
+        else:
             parts.append(Part(name, i + 1, Attach.LINK, LinkCapsules(radius, offsets)))
     payloads = top.get("payload", default=[])
     if not isinstance(payloads, list):
