@@ -158,3 +158,23 @@ def test_output_onto_an_input_is_refused_and_the_input_kept(tmp_path):
     )
     assert result.exit_code == 2 and "an input of this command" in result.output
     assert measured.read_bytes() == before
+
+
+def test_demo_logs_give_back_the_rig_they_were_made_with():
+    """trajectories/delay/ (scripts/make_delay_demo.py: a sum of sines through an exact
+    delay-and-lag response, uneven 250 Hz command, even 500 Hz measurement): the README's
+    worked example must find the script's delay within 2 ms and bandwidth within 15 %."""
+    import importlib.util
+    from pathlib import Path
+
+    root = Path(__file__).resolve().parents[1]
+    spec = importlib.util.spec_from_file_location("demo", root / "scripts" / "make_delay_demo.py")
+    demo = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(demo)
+    folder = root / "trajectories" / "delay"
+    estimate = estimate_delay_from_files(
+        folder / "shake_commanded.csv", folder / "shake_measured.csv"
+    )
+    assert estimate.kind == "pose" and len(estimate.channels) == 6
+    assert estimate.delay_s == pytest.approx(demo.DELAY_S, abs=0.002)
+    assert estimate.bandwidth_hz == pytest.approx(demo.BANDWIDTH_HZ, rel=0.15)

@@ -10,6 +10,7 @@ Library use::
 """
 
 from reachgate.checking.intervals import Check, Severity, Violation
+from reachgate.checking.lag import Prediction
 from reachgate.checking.pipeline import CheckSettings, Placement, Report, Verdict, check
 from reachgate.checking.rail import RailPolicy
 from reachgate.errors import ReachgateError
@@ -23,6 +24,7 @@ __all__ = [
     "CheckSettings",
     "Placement",
     "PlacementResult",
+    "Prediction",
     "RailPolicy",
     "ReachgateError",
     "Report",

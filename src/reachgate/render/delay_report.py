@@ -42,7 +42,8 @@ def _lines(estimate: DelayEstimate) -> list[str]:
     return [
         f"reachgate {__version__}: delay of the rig, {estimate.measured} against "
         f"{estimate.commanded}",
-        f"logs: {kind}; channels used: {', '.join(estimate.channels)}",
+        f"logs: {kind}",
+        f"channels used: {', '.join(estimate.channels)}",
         f"resampled: both logs onto one even {estimate.grid_step_s * ms:.4g} ms grid over the "
         f"{estimate.duration_s:.4g} s they share, by linear interpolation",
         f"  (median steps: commanded {estimate.commanded_step_s * ms:.4g} ms, measured "
