@@ -16,8 +16,13 @@ coefficients of the same fit to the rotation vectors log(R_kᵀ·R_j) of the pas
 from the newest k, so ξ1 is the body angular velocity and 2·ξ2 its rate of change (the chart's
 second-order term equals the body angular acceleration because [ξ1, ξ1] = 0).
 
-Between samples the pose (slerp for orientations) and the coefficients are interpolated
-linearly; before the first sample the command is held at its first pose, as a rig at rest.
+Between samples the pose and the coefficients are interpolated linearly (orientations by
+normalised linear interpolation of the quaternions, which strays from the shortest arc by under
+δ³/200 rad for a step of δ rad: 2e-8 rad for 1°); before the first sample the command is held
+at its first pose, as a rig at rest.
+
+Quaternions are handled as four contiguous (N,) arrays (w, x, y, z): column slices of an
+(N, 4) array are strided, and whole-array arithmetic on them was several times slower.
 """
 
 from __future__ import annotations
@@ -28,14 +33,12 @@ from enum import Enum
 
 import numpy as np
 
-from reachgate.model.transforms import quat_to_matrix, rotation_log
-
 #: Default tolerance on the orientation error the delay may cause (ours): about the angle
 #: that moves a point 0.5 m from the TCP (a mock-up's half-span) by the position default's
 #: 1 mm, 1/500 rad = 0.115°, rounded down to 0.1°.
 DEFAULT_LAG_TOL_RAD = math.radians(0.1)
-#: Samples per block of the prediction fits (bounds the (block, m, m) systems).
-PREDICT_BLOCK_SAMPLES = 65_536
+#: Below this rotation angle (rad) the series forms of exp and log are used.
+SMALL_ANGLE = 1e-6
 
 
 class Prediction(Enum):
@@ -58,49 +61,60 @@ class LagErrors:
     angle_rad: np.ndarray
 
 
-def _quat_multiply(a: np.ndarray, b: np.ndarray) -> np.ndarray:
-    """Hamilton products of (..., 4) scalar-first quaternions."""
-    aw, ax, ay, az = np.moveaxis(a, -1, 0)
-    bw, bx, by, bz = np.moveaxis(b, -1, 0)
-    return np.stack(
-        [
-            aw * bw - ax * bx - ay * by - az * bz,
-            aw * bx + ax * bw + ay * bz - az * by,
-            aw * by - ax * bz + ay * bw + az * bx,
-            aw * bz + ax * by - ay * bx + az * bw,
-        ],
-        axis=-1,
+Quat = tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]
+
+
+def _split(q_wxyz: np.ndarray) -> Quat:
+    return tuple(np.ascontiguousarray(q_wxyz[:, i], dtype=float) for i in range(4))
+
+
+def _multiply(a: Quat, b: Quat) -> Quat:
+    """Hamilton product a ⊗ b."""
+    aw, ax, ay, az = a
+    bw, bx, by, bz = b
+    return (
+        aw * bw - ax * bx - ay * by - az * bz,
+        aw * bx + ax * bw + ay * bz - az * by,
+        aw * by - ax * bz + ay * bw + az * bx,
+        aw * bz + ax * by - ay * bx + az * bw,
     )
 
 
-def _conjugate(q: np.ndarray) -> np.ndarray:
-    return q * np.array([1.0, -1.0, -1.0, -1.0])
+def _conjugate(a: Quat) -> Quat:
+    return a[0], -a[1], -a[2], -a[3]
 
 
-def quat_exp(rotvec: np.ndarray) -> np.ndarray:
-    """Unit quaternions (..., 4) of rotation vectors (..., 3) (axis · angle, rad)."""
-    angle = np.linalg.norm(rotvec, axis=-1)
-    half = 0.5 * angle
-    # sin(θ/2)/θ → 1/2 − θ²/48 as θ → 0 (series keeps tiny rotations exact).
-    small = angle < 1e-6
-    scale = np.where(small, 0.5 - angle**2 / 48.0, np.sin(half) / np.where(small, 1.0, angle))
-    return np.concatenate([np.cos(half)[..., None], rotvec * scale[..., None]], axis=-1)
+def _exp(v: tuple[np.ndarray, np.ndarray, np.ndarray]) -> Quat:
+    """Unit quaternion of a rotation vector (axis · angle, rad)."""
+    angle = np.sqrt(v[0] ** 2 + v[1] ** 2 + v[2] ** 2)
+    small = angle < SMALL_ANGLE
+    # sin(θ/2)/θ → 1/2 − θ²/48 as θ → 0
+    scale = np.where(small, 0.5 - angle**2 / 48.0, np.sin(0.5 * angle) / np.where(small, 1, angle))
+    return np.cos(0.5 * angle), v[0] * scale, v[1] * scale, v[2] * scale
 
 
-def quat_log(q: np.ndarray) -> np.ndarray:
-    """Rotation vectors (..., 3) of unit quaternions (..., 4), angle in [0, π]."""
-    q = q * np.where(q[..., :1] < 0.0, -1.0, 1.0)
-    vec_norm = np.linalg.norm(q[..., 1:], axis=-1)
-    angle = 2.0 * np.arctan2(vec_norm, q[..., 0])
-    small = vec_norm < 1e-12
-    scale = np.where(small, 2.0, angle / np.where(small, 1.0, vec_norm))
-    return q[..., 1:] * scale[..., None]
+def _log(a: Quat) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Rotation vector of a unit quaternion, angle in [0, π]."""
+    sign = np.where(a[0] < 0.0, -1.0, 1.0)
+    vec_norm = np.sqrt(a[1] ** 2 + a[2] ** 2 + a[3] ** 2)
+    small = vec_norm < SMALL_ANGLE
+    # 2·atan2(|v|, |w|)/|v| → 2/|w| as |v| → 0 (|w| → 1)
+    scale = sign * np.where(
+        small, 2.0, 2.0 * np.arctan2(vec_norm, sign * a[0]) / np.where(small, 1, vec_norm)
+    )
+    return a[1] * scale, a[2] * scale, a[3] * scale
 
 
-def rotation_between(q_a: np.ndarray, q_b: np.ndarray) -> np.ndarray:
-    """Angles (N,) in rad of the rotations q_aᵀ·q_b, accurate near 0."""
-    rel = _quat_multiply(_conjugate(q_a), q_b)
-    return 2.0 * np.arctan2(np.linalg.norm(rel[..., 1:], axis=-1), np.abs(rel[..., 0]))
+def _angle_between(a: Quat, b: Quat) -> np.ndarray:
+    """Angle (rad) of the rotation aᵀ·b; a need not be of unit length (the ratio cancels it)."""
+    aw, ax, ay, az = a
+    bw, bx, by, bz = b
+    w = aw * bw + ax * bx + ay * by + az * bz
+    # vector part of conj(a) ⊗ b: aw·bv − bw·av − av × bv
+    vx = aw * bx - bw * ax - (ay * bz - az * by)
+    vy = aw * by - bw * ay - (az * bx - ax * bz)
+    vz = aw * bz - bw * az - (ax * by - ay * bx)
+    return 2.0 * np.arctan2(np.sqrt(vx * vx + vy * vy + vz * vz), np.abs(w))
 
 
 def _bracket(t_s: np.ndarray, s: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -110,46 +124,70 @@ def _bracket(t_s: np.ndarray, s: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return k, alpha
 
 
-def _slerp(q: np.ndarray, k: np.ndarray, alpha: np.ndarray) -> np.ndarray:
-    """Orientations between samples k and k + 1 at fractions α, on the shortest arc."""
-    step = _quat_multiply(_conjugate(q[k]), q[k + 1])
-    return _quat_multiply(q[k], quat_exp(alpha[:, None] * quat_log(step)))
+def _between(q: Quat, k: np.ndarray, alpha: np.ndarray) -> Quat:
+    """Orientations between samples k and k + 1 at fractions α (normalised linear
+    interpolation on the shorter arc; left unnormalised, callers normalise or need not)."""
+    a = tuple(c[k] for c in q)
+    b = tuple(c[k + 1] for c in q)
+    dot = a[0] * b[0] + a[1] * b[1] + a[2] * b[2] + a[3] * b[3]
+    weight = np.where(dot < 0.0, -alpha, alpha)
+    mixed = tuple((1.0 - alpha) * ca + weight * cb for ca, cb in zip(a, b, strict=True))
+    norm = np.sqrt(sum(c * c for c in mixed))
+    return tuple(c / norm for c in mixed)
 
 
-def _padded(t_s, values, count):
-    """Times and values with `count` samples held at the first value before the start."""
-    first_step = t_s[1] - t_s[0]
-    t_before = t_s[0] - first_step * np.arange(count, 0, -1)
-    held = np.repeat(values[:1], count, axis=0)
-    return np.concatenate([t_before, t_s]), np.concatenate([held, values])
+def _causal_weights(d: list[np.ndarray]) -> tuple[list[np.ndarray], list[np.ndarray]]:
+    """Weights of the first and second polynomial coefficients at the newest sample.
+
+    d: times (N,) of the newest sample (0) and the m − 1 before it (negative), relative to
+    the newest. The polynomial through the m samples has c1 = Σ w1_j f_j, c2 = Σ w2_j f_j with
+    the Lagrange basis L_j: w1_j = L_j'(0), w2_j = L_j''(0)/2, in closed form (nodes at 0):
+    j ≥ 1: w1_j = Π_{i≥1, i≠j} (−d_i) / Π_{i≠j} (d_j − d_i), w2_j = w1_j · Σ_{i≥1, i≠j} −1/d_i;
+    j = 0: w1_0 = Σ_{i≥1} −1/d_i, w2_0 = Σ_{1≤i<l} 1/(d_i d_l).
+    """
+    m = len(d)
+    inverse = [None] + [-1.0 / d[i] for i in range(1, m)]
+    w1 = [sum(inverse[1:])]
+    w2 = [sum(1.0 / (d[i] * d[j]) for i in range(1, m) for j in range(i + 1, m))]
+    for j in range(1, m):
+        numerator = np.ones_like(d[0])
+        denominator = d[j].copy()  # the i = 0 factor, d_j − 0
+        for i in range(1, m):
+            if i != j:
+                numerator = numerator * -d[i]
+                denominator = denominator * (d[j] - d[i])
+        w1.append(numerator / denominator)
+        w2.append(w1[j] * sum(inverse[i] for i in range(1, m) if i != j))
+    return w1, w2
 
 
-def _causal_coefficients(t_s: np.ndarray, p_m: np.ndarray, q_wxyz: np.ndarray, degree: int):
-    """(c (N, 2, 3), ξ (N, 2, 3)): first and second coefficients of the polynomial, in time
-    from each sample, through the newest degree + 2 samples up to it; positions and rotation
-    vectors seen from the newest sample's orientation (body frame)."""
+def _causal_coefficients(t_s: np.ndarray, p_m: np.ndarray, q: Quat, degree: int):
+    """First and second coefficients, in time from each sample, of the polynomials through
+    the newest degree + 2 samples up to it: (c1, c2) for positions, each (N, 3), and
+    (ξ1, ξ2) for the rotation vectors log(q_kᵀ·q_j) seen from the newest sample k, each a
+    tuple of 3 (N,) arrays. Before the first sample the command is held at its first pose,
+    one first step apart."""
     m = degree + 2
-    t_pad, p_pad = _padded(t_s, p_m, m - 1)
-    _, q_pad = _padded(t_s, q_wxyz, m - 1)
     n = t_s.size
-    c = np.empty((n, 2, 3))
-    xi = np.empty((n, 2, 3))
-    for first in range(0, n, PREDICT_BLOCK_SAMPLES):
-        last = min(first + PREDICT_BLOCK_SAMPLES, n)
-        newest = np.arange(first, last) + (m - 1)  # index in the padded arrays
-        past = newest[:, None] - np.arange(m)[None, :]  # (B, m): newest first
-        scale = t_pad[newest] - t_pad[newest - 1]  # one step, for conditioning
-        d = (t_pad[past] - t_pad[newest][:, None]) / scale[:, None]  # (B, m) ≤ 0
-        vander = d[:, :, None] ** np.arange(m)[None, None, :]  # (B, m, m)
-        positions = p_pad[past] - p_pad[newest][:, None, :]
-        R_newest = quat_to_matrix(q_pad[newest])
-        R_past = quat_to_matrix(q_pad[past].reshape(-1, 4)).reshape(-1, m, 3, 3)
-        rotations = rotation_log(np.swapaxes(R_newest, -1, -2)[:, None] @ R_past)
-        solved = np.linalg.solve(vander, np.concatenate([positions, rotations], axis=2))
-        per_time = np.stack([1.0 / scale, 1.0 / scale**2], axis=1)[:, :, None]  # (B, 2, 1)
-        c[first:last] = solved[:, 1:3, :3] * per_time
-        xi[first:last] = solved[:, 1:3, 3:] * per_time
-    return c, xi
+    newest = np.arange(n)
+    first_step = t_s[1] - t_s[0]
+    d, past = [np.zeros(n)], [newest]
+    for j in range(1, m):
+        source = newest - j
+        d.append(
+            np.where(source < 0, t_s[0] + source * first_step, t_s[np.maximum(source, 0)]) - t_s
+        )
+        past.append(np.maximum(source, 0))
+    w1, w2 = _causal_weights(d)
+    c1 = sum(w1[j][:, None] * p_m[past[j]] for j in range(m))
+    c2 = sum(w2[j][:, None] * p_m[past[j]] for j in range(m))
+    seen = _conjugate(q)
+    xi1, xi2 = [np.zeros(n)] * 3, [np.zeros(n)] * 3
+    for j in range(1, m):  # the newest sample's own rotation vector is 0
+        v = _log(_multiply(seen, tuple(c[past[j]] for c in q)))
+        xi1 = [a + w1[j] * b for a, b in zip(xi1, v, strict=True)]
+        xi2 = [a + w2[j] * b for a, b in zip(xi2, v, strict=True)]
+    return (c1, c2), (xi1, xi2)
 
 
 def predicted_poses(
@@ -159,25 +197,38 @@ def predicted_poses(
     lag_s: float,
     prediction: Prediction = Prediction.NONE,
 ) -> tuple[np.ndarray, np.ndarray]:
-    """Where the rig puts the TCP at each sample time: (p̂ (N, 3) m, q̂ (N, 4)).
+    """Where the rig puts the TCP at each sample time: (p̂ (N, 3) m, q̂ (N, 4) unit).
 
     t_s (N,) s; p_m (N, 3) m; q_wxyz (N, 4) scalar-first, any one frame. See the module
     docstring: the command at t − lag, extrapolated over lag by the prediction's degree.
     """
-    t_s, p_m, q_wxyz = (np.asarray(a, dtype=float) for a in (t_s, p_m, q_wxyz))
-    k, alpha = _bracket(t_s, t_s - lag_s)
-    a = alpha[:, None]
-    p_hat = (1.0 - a) * p_m[k] + a * p_m[k + 1]
-    q_hat = _slerp(q_wxyz, k, alpha)
+    t_s, p_m = np.asarray(t_s, dtype=float), np.asarray(p_m, dtype=float)
+    p_hat, q_hat = _predicted(t_s, p_m, _split(np.asarray(q_wxyz, dtype=float)), lag_s, prediction)
+    return np.column_stack(p_hat), np.column_stack(q_hat)
+
+
+def _predicted(t_s, p_m, q: Quat, lag_s, prediction):
+    """(p̂ as 3 (N,) arrays, q̂ as a Quat)."""
+    s = t_s - lag_s
+    # np.interp: the same clamped linear interpolation as _bracket, and the fastest
+    p_hat = [np.interp(s, t_s, p_m[:, c]) for c in range(3)]
+    k, alpha = _bracket(t_s, s)
+    q_hat = _between(q, k, alpha)
     degree = prediction.degree
     if degree:
-        c, xi = _causal_coefficients(t_s, p_m, q_wxyz, degree)
-        powers = np.array([lag_s, lag_s**2])[:degree]
-        ab = a[:, :, None]
-        step_c = ((1.0 - ab) * c[k] + ab * c[k + 1])[:, :degree]
-        step_xi = ((1.0 - ab) * xi[k] + ab * xi[k + 1])[:, :degree]
-        p_hat = p_hat + np.einsum("j,njd->nd", powers, step_c)
-        q_hat = _quat_multiply(q_hat, quat_exp(np.einsum("j,njd->nd", powers, step_xi)))
+        (c1, c2), (xi1, xi2) = _causal_coefficients(t_s, p_m, q, degree)
+        step = [np.zeros(t_s.size)] * 3
+        for power, (c, xi) in enumerate([(c1, xi1), (c2, xi2)][:degree], start=1):
+            scale = lag_s**power
+            for axis in range(3):
+                c_axis = c[:, axis]
+                p_hat[axis] = p_hat[axis] + scale * (
+                    (1.0 - alpha) * c_axis[k] + alpha * c_axis[k + 1]
+                )
+                step[axis] = step[axis] + scale * (
+                    (1.0 - alpha) * xi[axis][k] + alpha * xi[axis][k + 1]
+                )
+        q_hat = _multiply(q_hat, _exp(tuple(step)))
     return p_hat, q_hat
 
 
@@ -189,10 +240,10 @@ def lag_errors(
     prediction: Prediction = Prediction.NONE,
 ) -> LagErrors:
     """Tracking errors (N,) of a rig that reaches each commanded pose lag_s late: the distance
-    and the rotation angle between the commanded pose and predicted_poses(). A rigid
-    placement changes neither, so any one frame serves."""
-    p_hat, q_hat = predicted_poses(t_s, p_m, q_wxyz, lag_s, prediction)
-    return LagErrors(
-        position_m=np.linalg.norm(np.asarray(p_m, dtype=float) - p_hat, axis=1),
-        angle_rad=rotation_between(q_hat, np.asarray(q_wxyz, dtype=float)),
-    )
+    and the rotation angle between the commanded pose and the one the rig holds
+    (predicted_poses). A rigid placement changes neither, so any one frame serves."""
+    t_s, p_m = np.asarray(t_s, dtype=float), np.asarray(p_m, dtype=float)
+    q = _split(np.asarray(q_wxyz, dtype=float))
+    p_hat, q_hat = _predicted(t_s, p_m, q, lag_s, prediction)
+    squared = sum((p_m[:, c] - p_hat[c]) ** 2 for c in range(3))
+    return LagErrors(position_m=np.sqrt(squared), angle_rad=_angle_between(q_hat, q))
