@@ -198,3 +198,22 @@ def test_check_command_takes_the_rotation_tolerance_and_the_prediction(tmp_path)
         result = runner.invoke(app, [*base, *bad])
         assert result.exit_code == 2, result.output
         assert bad[0] in result.output
+
+
+def test_rotation_tolerance_and_prediction_without_lag_are_refused(tmp_path):
+    """Options never ignored: --lag-tol-deg and --predict only mean something with --lag."""
+    from typer.testing import CliRunner
+
+    from reachgate.cli import app
+
+    for extra in (["--lag-tol-deg", "0.5"], ["--predict", "linear"]):
+        result = CliRunner().invoke(
+            app,
+            [
+                "check",
+                str(DEMO_ROBOT),
+                str(DEMO_ROBOT.parents[1] / "trajectories" / "approach_calm.csv"),
+                *extra,
+            ],
+        )
+        assert result.exit_code == 2 and extra[0] in result.output and "--lag" in result.output

@@ -152,11 +152,14 @@ class PredictMode(str, Enum):
 
 
 LagTolDegOption = Annotated[
-    float,
-    typer.Option("--lag-tol-deg", help="TCP rotation error the delay may cause, deg."),
+    float | None,
+    typer.Option(
+        "--lag-tol-deg",
+        help=f"TCP rotation error the delay may cause, deg (default {DEFAULT_LAG_TOL_DEG:g}).",
+    ),
 ]
 PredictOption = Annotated[
-    PredictMode,
+    PredictMode | None,
     typer.Option(
         "--predict",
         help="The rig's delay compensation: extrapolate the command over --lag (causally).",
@@ -171,24 +174,29 @@ def settings_from_options(
     rail_bandwidth,
     lag,
     lag_tol,
-    lag_tol_deg=DEFAULT_LAG_TOL_DEG,
-    predict=PredictMode.none,
+    lag_tol_deg=None,
+    predict=None,
 ):
     """CheckSettings from the shared check/scan options (SI inside).
 
-    Refuses options that would be ignored: --lag-tol without --lag, --rail-at with
-    --rail follow (the carriage then moves; --rail-at fixes it).
+    Refuses options that would be ignored: --lag-tol, --lag-tol-deg or --predict without
+    --lag, --rail-at with --rail follow (the carriage then moves; --rail-at fixes it).
     """
     from reachgate.checking.lag import Prediction
     from reachgate.checking.pipeline import CheckSettings, Placement
     from reachgate.checking.rail import RailPolicy
 
     _refuse_ignored_rail_at(rail, rail_at)
-    if lag_tol is not None and lag is None:
-        raise ReachgateError(
-            "--lag-tol: the lag check runs only with --lag S (the rig's loop delay); "
-            "give --lag, or leave out --lag-tol"
-        )
+    for name, given in (
+        ("--lag-tol", lag_tol),
+        ("--lag-tol-deg", lag_tol_deg),
+        ("--predict", predict),
+    ):
+        if given is not None and lag is None:
+            raise ReachgateError(
+                f"{name}: the lag check runs only with --lag S (the rig's loop delay); "
+                f"give --lag, or leave out {name}"
+            )
     return CheckSettings(
         placement=Placement() if place is None else Placement.parse(place),
         rail=RailPolicy(rail.value),
@@ -196,8 +204,8 @@ def settings_from_options(
         rail_bandwidth_hz=rail_bandwidth,
         lag_s=lag,
         lag_tol_m=DEFAULT_LAG_TOL_M if lag_tol is None else lag_tol / 1000.0,
-        lag_tol_rad=math.radians(lag_tol_deg),
-        predict=Prediction(predict.value),
+        lag_tol_rad=DEFAULT_LAG_TOL_RAD if lag_tol_deg is None else math.radians(lag_tol_deg),
+        predict=Prediction.NONE if predict is None else Prediction(predict.value),
     )
 
 
@@ -222,8 +230,8 @@ def check_command(
     rail_bandwidth: BandwidthOption = DEFAULT_BANDWIDTH_HZ,
     lag: LagOption = None,
     lag_tol: LagTolOption = None,
-    lag_tol_deg: LagTolDegOption = DEFAULT_LAG_TOL_DEG,
-    predict: PredictOption = PredictMode.none,
+    lag_tol_deg: LagTolDegOption = None,
+    predict: PredictOption = None,
     fmt: Annotated[
         OutputFormat, typer.Option("--format", help="Report format.")
     ] = OutputFormat.table,
@@ -442,8 +450,8 @@ def scan_command(
     rail_bandwidth: BandwidthOption = DEFAULT_BANDWIDTH_HZ,
     lag: LagOption = None,
     lag_tol: LagTolOption = None,
-    lag_tol_deg: LagTolDegOption = DEFAULT_LAG_TOL_DEG,
-    predict: PredictOption = PredictMode.none,
+    lag_tol_deg: LagTolDegOption = None,
+    predict: PredictOption = None,
     store: Annotated[
         Path | None,
         typer.Option(
@@ -621,8 +629,8 @@ def place_command(
     rail_bandwidth: BandwidthOption = DEFAULT_BANDWIDTH_HZ,
     lag: LagOption = None,
     lag_tol: LagTolOption = None,
-    lag_tol_deg: LagTolDegOption = DEFAULT_LAG_TOL_DEG,
-    predict: PredictOption = PredictMode.none,
+    lag_tol_deg: LagTolDegOption = None,
+    predict: PredictOption = None,
     seed: Annotated[int, typer.Option("--seed", help="Seed of the search (repeatable).")] = 0,
     workers: Annotated[
         int | None, typer.Option("--workers", help="Local worker processes (default: one per CPU).")
