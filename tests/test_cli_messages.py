@@ -150,7 +150,8 @@ def test_unicode_digits_are_refused_naming_line_and_column(tmp_path):
 
 def test_no_numpy_warning_reaches_the_terminal(tmp_path):
     """A sample 1e300 m away overflows squares inside the IK: the check still answers (reach
-    rows), and stderr stays empty. A subprocess, so warnings print as they would."""
+    rows), and stderr stays empty, in check and in a scan's worker process. Subprocesses, so
+    warnings print as they would."""
     lines = calm_lines()
     k = header_index(lines) + 3
     fields = lines[k].split(",")
@@ -166,3 +167,13 @@ def test_no_numpy_warning_reaches_the_terminal(tmp_path):
     assert done.returncode == 1, done.stderr
     assert done.stderr == ""
     assert "reach" in done.stdout
+    store = tmp_path / "s.sqlite"
+    command = ["scan", str(DEMO_ROBOT), str(case), "--workers", "1", "--quiet", "--store"]
+    scanned = subprocess.run(  # a spawned worker process checks the case, as in every scan
+        [sys.executable, "-m", "reachgate", *command, str(store)],
+        capture_output=True,
+        text=True,
+        timeout=300,
+    )
+    assert scanned.returncode == 1, scanned.stderr
+    assert scanned.stderr == ""

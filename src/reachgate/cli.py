@@ -734,6 +734,9 @@ EXIT_CLUSTER_LOST = 3
 def main() -> None:
     """Console-script entry point."""
     os.environ.setdefault("NO_COLOR", "1")
+    # Worker processes (scan's are spawned) start with this filter: no numeric warning of
+    # theirs reaches the terminal either (this process filters them in _one_line_errors).
+    os.environ.setdefault("PYTHONWARNINGS", "ignore::RuntimeWarning")
     app(prog_name="reachgate")
 
 
