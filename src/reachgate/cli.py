@@ -431,6 +431,13 @@ def envelope_command(
 # --- scan ---
 
 
+class ScanFormat(str, Enum):
+    table = "table"
+    json = "json"
+    csv = "csv"
+    html = "html"
+
+
 @app.command("scan")
 def scan_command(
     robot: Annotated[
@@ -474,21 +481,27 @@ def scan_command(
     ] = False,
     quiet: Annotated[bool, typer.Option("--quiet", help="No progress bar.")] = False,
     fmt: Annotated[
-        OutputFormat, typer.Option("--format", help="Summary format.")
-    ] = OutputFormat.table,
+        ScanFormat,
+        typer.Option("--format", help="Summary format; html: the one-page morning report."),
+    ] = ScanFormat.table,
     out: Annotated[Path | None, typer.Option("--out", help="Write the summary here.")] = None,
+    compare: Annotated[
+        Path | None,
+        typer.Option("--compare", help="Another results store: list what changed since it."),
+    ] = None,
 ) -> None:
     """Check many cases with one robot and one set of options; results in a store, resumable."""
     from contextlib import nullcontext
 
     from reachgate.batch.scan import load_summary, scan
-    from reachgate.render.scan_report import ProgressBar, render_summary
+    from reachgate.render.scan_report import ProgressBar
 
     _refuse_overwriting_inputs(
         {"--out": out},
         {
             "robot file": robot,
             "results store": store,
+            "other results store": compare,
             **{f"case {case}": case for case in cases or () if Path(case).is_file()},
         },
     )
@@ -533,8 +546,28 @@ def scan_command(
         except ClusterLostError as error:
             print(f"reachgate: error: {error}", file=sys.stderr)
             raise typer.Exit(EXIT_CLUSTER_LOST) from None
-    _write_or_print(render_summary(summary, fmt.value), out)
+    _write_or_print(_guarded(lambda: _scan_output(summary, fmt, robot, compare, out)), out)
     raise typer.Exit(EXIT_PASS if summary.passed else EXIT_FAIL)
+
+
+def _scan_output(summary, fmt: ScanFormat, robot: Path | None, compare, out) -> str:
+    """The summary (or with --compare the changes) in the asked format; html: the page."""
+    from reachgate.render.scan_report import render_summary
+
+    comparison = None
+    if compare is not None:
+        from reachgate.batch.compare import compare_stores
+
+        comparison = compare_stores(summary, compare)
+    if fmt is ScanFormat.html:
+        from reachgate.render.night_report import render_night_page
+
+        return render_night_page(summary, robot_path=robot, comparison=comparison)
+    if comparison is not None:
+        from reachgate.render.compare_report import render_comparison
+
+        return render_comparison(comparison, fmt.value)
+    return render_summary(summary, fmt.value)
 
 
 # --- delay ---

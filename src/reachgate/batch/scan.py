@@ -42,6 +42,7 @@ from reachgate.errors import ClusterLostError, ReachgateError
 from reachgate.model.columnar import COLUMNAR_SUFFIXES
 from reachgate.model.robot import Robot, load_robot, robot_from_dict
 from reachgate.model.trajectory import import_fast_reader, load_trajectory
+from reachgate.motion.case_parameters import read_case_parameters
 from reachgate.version import __version__
 
 __all__ = [
@@ -188,14 +189,16 @@ def check_case(case_path: str, settings: CheckSettings, robot_raw: bytes, robot_
     """Check one case file; never raises for a bad or crashing case. -> plain dict.
 
     Keys: case_path, case_sha256, verdict ("pass" | "fail" | "error"), error, report
-    (Report.as_dict() or None), excess_fractions (one per violation row), elapsed_s, worker.
+    (Report.as_dict() or None), excess_fractions (one per violation row), parameters (the
+    file's 'key = value' comment lines, or None when unreadable), elapsed_s, worker.
     """
     started = time.perf_counter()
     out: dict = {"case_path": case_path, "case_sha256": None, "verdict": "error"}
-    out.update(error=None, report=None, excess_fractions=None)
+    out.update(error=None, report=None, excess_fractions=None, parameters=None)
     try:
         import_fast_reader()  # a worker reads many files: the faster reader repays its import
         out["case_sha256"] = file_sha256(case_path)
+        out["parameters"] = read_case_parameters(case_path)
         robot = _robot_for(robot_raw, robot_label)
         report = check(robot, load_trajectory(case_path), settings)
         out["report"] = report.as_dict()
@@ -238,6 +241,7 @@ def _error_result(case_path: str, message: str) -> dict:
         "error": f"{case_path}: {message}",
         "report": None,
         "excess_fractions": None,
+        "parameters": None,
         "elapsed_s": 0.0,
         "worker": "",
     }
@@ -503,6 +507,9 @@ def _store_row(result: dict, name: str, common: dict) -> tuple[dict, list[tuple]
         "elapsed_s": result["elapsed_s"],
         "checked_at": _now(),
         "worker": result["worker"],
+        "parameters_json": None
+        if result.get("parameters") is None
+        else json.dumps(result["parameters"], sort_keys=True),
     }
     rows = [
         (

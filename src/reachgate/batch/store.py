@@ -34,6 +34,11 @@ from reachgate.errors import ReachgateError
 SCHEMA_VERSION = 2
 #: How long a write waits for another process holding the store (a second scan), s.
 BUSY_TIMEOUT_S = 30.0
+#: Columns added to a table after its schema version was set, with their SQL type: a store
+#: written before them opens as it is (the rows read None there) and gains the column when
+#: opened for writing. Programs that predate a column ignore it (checksums included: see
+#: row_checksum).
+_ADDED_COLUMNS = {"cases": {"parameters_json": "TEXT"}}
 #: Checks that have no fraction of a limit to rank by: the path cannot be followed at all.
 _UNRANKED_CHECKS = frozenset({Check.REACH, Check.BRANCH})
 
@@ -74,7 +79,8 @@ CREATE TABLE IF NOT EXISTS cases (
     checked_at TEXT NOT NULL,
     worker TEXT NOT NULL,
     run_id INTEGER NOT NULL REFERENCES runs (run_id),
-    row_sha256 TEXT
+    row_sha256 TEXT,
+    parameters_json TEXT
 );
 CREATE TABLE IF NOT EXISTS violations (
     case_id INTEGER NOT NULL REFERENCES cases (case_id),
@@ -145,6 +151,9 @@ class CaseResult:
     worker: str
     run_id: int
     case_id: int
+    #: The case file's own 'key = value' comment lines (perturb's settings); {} when it has
+    #: none, None when the store predates recording them.
+    parameters: dict | None = None
 
     @property
     def failed(self) -> bool:
@@ -176,6 +185,7 @@ class CaseResult:
                 "elapsed_s": self.elapsed_s,
                 "checked_at": self.checked_at,
                 "worker": self.worker,
+                "parameters": self.parameters,
             }
         )
 
@@ -269,10 +279,17 @@ _VIOLATION_COLUMNS = (
 def row_checksum(values: dict, violations: Iterable[tuple]) -> str:
     """sha256 of a case row's values (_CHECKED_COLUMNS) and its violation rows, in order.
 
-    Floats enter by repr, which round-trips exactly through SQLite's 8-byte REAL.
+    Floats enter by repr, which round-trips exactly through SQLite's 8-byte REAL. A column of
+    _ADDED_COLUMNS enters only where the row has a value in it, so rows sealed before the
+    column existed keep their checksums, and a value put in or taken out later breaks them.
     """
+    added = [
+        [c, values[c]]
+        for c in _ADDED_COLUMNS["cases"]
+        if c in values.keys() and values[c] is not None
+    ]
     text = json.dumps(
-        [[values[c] for c in _CHECKED_COLUMNS], [list(v) for v in violations]],
+        [[values[c] for c in _CHECKED_COLUMNS], [list(v) for v in violations], *added],
         allow_nan=True,
         separators=(",", ":"),
     )
@@ -281,14 +298,8 @@ def row_checksum(values: dict, violations: Iterable[tuple]) -> str:
 
 def _stored_checksum(db: sqlite3.Connection, case_id: int) -> str:
     """row_checksum of one case as it reads back from the store."""
-    columns = ", ".join(_CHECKED_COLUMNS)
-    values = dict(
-        zip(
-            _CHECKED_COLUMNS,
-            db.execute(f"SELECT {columns} FROM cases WHERE case_id = ?", (case_id,)).fetchone(),
-            strict=True,
-        )
-    )
+    cursor = db.execute("SELECT * FROM cases WHERE case_id = ?", (case_id,))
+    values = dict(zip((d[0] for d in cursor.description), cursor.fetchone(), strict=True))
     children = db.execute(
         f"SELECT {', '.join(_VIOLATION_COLUMNS)} FROM violations WHERE case_id = ? ORDER BY seq",
         (case_id,),
@@ -363,6 +374,8 @@ class Store:
                     f"{self.path}: store schema version {found}, this program writes "
                     f"{SCHEMA_VERSION}; use another --store"
                 )
+            if not self.read_only:
+                self._add_missing_columns()
             return
         if tables:
             raise ReachgateError(f"{self.path}: an SQLite file, but not a reachgate results store")
@@ -374,6 +387,20 @@ class Store:
             + f"INSERT OR IGNORE INTO meta VALUES ('schema_version', '{SCHEMA_VERSION}');"
             + "COMMIT;"
         )
+
+    def _add_missing_columns(self) -> None:
+        """Give a store written before a column of _ADDED_COLUMNS that column (once)."""
+        for table, columns in _ADDED_COLUMNS.items():
+            for name, kind in columns.items():
+
+                def add(db, table=table, name=name, kind=kind) -> None:
+                    have = {r[1] for r in db.execute(f"PRAGMA table_info({table})")}
+                    if name not in have:  # checked inside the write lock: added once
+                        db.execute(f"ALTER TABLE {table} ADD COLUMN {name} {kind}")
+
+                have = {r[1] for r in self.db.execute(f"PRAGMA table_info({table})")}
+                if name not in have:
+                    self._write(add)
 
     def _upgrade_from_1(self) -> None:
         """Version 1 had no row checksums: add the column and seal the rows as they are."""
@@ -591,7 +618,14 @@ def _case(row: sqlite3.Row, children: list[sqlite3.Row]) -> CaseResult:
         worker=row["worker"],
         run_id=row["run_id"],
         case_id=row["case_id"],
+        parameters=_parameters(row),
     )
+
+
+def _parameters(row: sqlite3.Row) -> dict | None:
+    if "parameters_json" not in row.keys() or row["parameters_json"] is None:
+        return None
+    return json.loads(row["parameters_json"])
 
 
 class ScanLock:

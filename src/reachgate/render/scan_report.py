@@ -49,6 +49,43 @@ def _margin_text(c: CaseResult) -> str:
     return f"{c.worst_margin:.2f} ({c.worst_margin_axis} {c.worst_margin_limit})"
 
 
+RANKED_TITLES = (
+    "#",
+    "case",
+    "verdict",
+    "worst margin",
+    "first violation from",
+    "worst violation at",
+    "slow-down",
+)
+MARGIN_NOTE = "margins: fraction of a limit left (1 unused, 0 at it, < 0 beyond)"
+STAR_NOTE = "slow-down*: clears the speed, accel and jerk rows only; other violations remain"
+
+
+def ranked_rows(cases: tuple[CaseResult, ...]) -> tuple[list[tuple[str, ...]], bool]:
+    """The ranked table's cells, one tuple per case (RANKED_TITLES), as text; -> (rows,
+    starred: some slow-down carries the '*' of STAR_NOTE). Shared by the text and HTML reports."""
+    rows = []
+    starred = False
+    for rank, c in enumerate(cases, start=1):
+        slow = "-" if c.slowdown is None or c.verdict is CaseVerdict.ERROR else f"{c.slowdown:.3f}"
+        if c.slowdown is not None and _stretch_leaves_rows(c):
+            slow += "*"
+            starred = True
+        rows.append(
+            (
+                str(rank),
+                c.name,
+                c.verdict.value,
+                _margin_text(c),
+                _row_text(c.first, c.first and c.first.start_s),
+                _row_text(c.worst, c.worst and c.worst.worst_s),
+                slow,
+            )
+        )
+    return rows, starred
+
+
 def render_table(summary: ScanSummary, width: int | None = None) -> str:
     """Colour-free summary: ranked cases, counts per check, errors, cautions."""
 
@@ -74,29 +111,15 @@ def render_table(summary: ScanSummary, width: int | None = None) -> str:
     say(setups.pop() if len(setups) == 1 else "differ between cases (see json)", "settings: ")
     say("ranked worst first: errors, failing cases, passing cases, by worst margin")
     table = plain_table()
-    titles = ("#", "case", "verdict", "worst margin", "first violation from", "worst violation at")
-    for title in titles:
-        table.add_column(title, justify="right" if title == "#" else "left")
-    table.add_column("slow-down", justify="right")
-    starred = False
-    for rank, c in enumerate(summary.cases, start=1):
-        slow = "-" if c.slowdown is None or c.verdict is CaseVerdict.ERROR else f"{c.slowdown:.3f}"
-        if c.slowdown is not None and _stretch_leaves_rows(c):
-            slow += "*"
-            starred = True
-        table.add_row(
-            str(rank),
-            c.name,
-            c.verdict.value,
-            _margin_text(c),
-            _row_text(c.first, c.first and c.first.start_s),
-            _row_text(c.worst, c.worst and c.worst.worst_s),
-            slow,
-        )
+    for title in RANKED_TITLES:
+        table.add_column(title, justify="right" if title in ("#", "slow-down") else "left")
+    rows, starred = ranked_rows(summary.cases)
+    for row in rows:
+        table.add_row(*row)
     console.print(table)
-    say("margins: fraction of a limit left (1 unused, 0 at it, < 0 beyond)")
+    say(MARGIN_NOTE)
     if starred:
-        say("slow-down*: clears the speed, accel and jerk rows only; other violations remain")
+        say(STAR_NOTE)
     if summary.counts:
         counts = plain_table()
         for title in ("check", "violation rows", "near rows", "failing cases"):
