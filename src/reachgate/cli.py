@@ -489,6 +489,10 @@ def scan_command(
         Path | None,
         typer.Option("--compare", help="Another results store: list what changed since it."),
     ] = None,
+    pictures: Annotated[
+        int,
+        typer.Option("--pictures", help="html: draw this many worst failing cases (0: none)."),
+    ] = 3,
 ) -> None:
     """Check many cases with one robot and one set of options; results in a store, resumable."""
     from contextlib import nullcontext
@@ -505,6 +509,8 @@ def scan_command(
             **{f"case {case}": case for case in cases or () if Path(case).is_file()},
         },
     )
+    if pictures < 0:
+        _fail_bad_input(f"--pictures: must be 0 or more, got {pictures}")
     if report:
         if store is None:
             _fail_bad_input("--report reads a results store: give --store FILE")
@@ -546,11 +552,12 @@ def scan_command(
         except ClusterLostError as error:
             print(f"reachgate: error: {error}", file=sys.stderr)
             raise typer.Exit(EXIT_CLUSTER_LOST) from None
-    _write_or_print(_guarded(lambda: _scan_output(summary, fmt, robot, compare, out)), out)
+    text = _guarded(lambda: _scan_output(summary, fmt, robot, compare, pictures))
+    _write_or_print(text, out)
     raise typer.Exit(EXIT_PASS if summary.passed else EXIT_FAIL)
 
 
-def _scan_output(summary, fmt: ScanFormat, robot: Path | None, compare, out) -> str:
+def _scan_output(summary, fmt: ScanFormat, robot: Path | None, compare, pictures) -> str:
     """The summary (or with --compare the changes) in the asked format; html: the page."""
     from reachgate.render.scan_report import render_summary
 
@@ -562,7 +569,9 @@ def _scan_output(summary, fmt: ScanFormat, robot: Path | None, compare, out) -> 
     if fmt is ScanFormat.html:
         from reachgate.render.night_report import render_night_page
 
-        return render_night_page(summary, robot_path=robot, comparison=comparison)
+        return render_night_page(
+            summary, robot_path=robot, comparison=comparison, pictures=pictures
+        )
     if comparison is not None:
         from reachgate.render.compare_report import render_comparison
 
