@@ -145,8 +145,8 @@ def _sha256(path: Path) -> str:
 
 
 def _value_key(value) -> tuple:
-    """Sort numbers by value before text; keep 'light < moderate < severe' by their sigma
-    elsewhere (text sorts by name here)."""
+    """Numbers by value first, then text by name (perturb's intensities, light < moderate <
+    severe, happen to sort in their order of strength)."""
     return (0, value, "") if isinstance(value, int | float) else (1, 0, str(value))
 
 
