@@ -28,7 +28,8 @@ from reachgate.checking.rail import RailPolicy
 from reachgate.cli import app
 from reachgate.model.trajectory import Trajectory, load_trajectory, write_trajectory
 from reachgate.motion.case_parameters import read_case_parameters
-from reachgate.motion.disturb import make_disturbance_cases, write_disturbance_cases
+from reachgate.motion.disturb import make_disturbance_cases
+from reachgate.render.cases import write_case_files
 from reachgate.render.pictures import DPI, REPORT_SIZE_IN
 
 from conftest import DEMO_CASES, DEMO_ROBOT
@@ -58,7 +59,7 @@ def night(tmp_path_factory):
     nominal = short_nominal()
     for intensity, seed, count in PLAN:
         cases = make_disturbance_cases(nominal, count, seed, intensity=intensity)
-        write_disturbance_cases(cases, folder / "cases" / f"{intensity}_{seed}", "approach")
+        write_case_files(cases, folder / "cases" / f"{intensity}_{seed}", "approach")
     write_trajectory(folder / "cases" / "plain.csv", nominal, ("no parameters here",))
     lines = (folder / "cases" / "light_3" / "approach_0001.csv").read_text().splitlines()
     header = next(i for i, line in enumerate(lines) if not line.startswith("#"))
@@ -265,7 +266,7 @@ def test_store_from_before_parameters_opens_and_reads_them_from_unchanged_files(
 
 def test_perturb_parameters_read_back_from_the_written_files(tmp_path):
     cases = make_disturbance_cases(short_nominal(), 2, 11, intensity=None, sigma_m_s=1.25)
-    paths = write_disturbance_cases(cases, tmp_path, "n")
+    paths = write_case_files(cases, tmp_path, "n")
     for case, path in zip(cases, paths, strict=True):
         assert read_case_parameters(path) == case.settings
 
@@ -365,7 +366,7 @@ def test_compare_and_html_bad_input_is_one_line_and_exit_2(night, tmp_path):
     assert "no such results store" in missing.stderr and len(missing.stderr.splitlines()) == 1
     onto_input = runner.invoke(app, [*base, "--format", "html", "--out", str(night["store"])])
     assert onto_input.exit_code == 2
-    assert "that is an input" in onto_input.stderr
+    assert "an input of this command" in onto_input.stderr
 
 
 def test_template_is_shipped_as_package_data(tmp_path):
