@@ -75,6 +75,18 @@ def night(tmp_path_factory):
     return {"folder": folder, "store": store, "page": page, "summary": summary}
 
 
+def reseal(db: sqlite3.Connection) -> None:
+    """Give every case row the checksum of its values now, as the scan that wrote them would
+    have: the edited copies below stand for stores written by other runs, not for damage."""
+    from reachgate.batch.store import _stored_checksum
+
+    for (case_id,) in db.execute("SELECT case_id FROM cases").fetchall():
+        db.execute(
+            "UPDATE cases SET row_sha256 = ? WHERE case_id = ?",
+            (_stored_checksum(db, case_id), case_id),
+        )
+
+
 def parse_strict(text: str):
     """The page as an element tree; html5lib in strict mode raises on any parse error."""
     import html5lib
@@ -241,6 +253,7 @@ def test_store_from_before_parameters_opens_and_reads_them_from_unchanged_files(
     shutil.copy(night["store"], old)
     with sqlite3.connect(old) as db:
         db.execute("ALTER TABLE cases DROP COLUMN parameters_json")
+        reseal(db)
     changed = night["folder"] / "cases" / "severe_4" / "approach_0002.csv"
     original = changed.read_bytes()
     try:
@@ -305,6 +318,7 @@ def before(night, tmp_path_factory):
             "FROM cases WHERE case_name = ?",
             (passing[2].name,),
         )
+        reseal(db)
     return {"store": other, "flipped": flipped, "moved": moved, "new": new_now}
 
 
@@ -383,3 +397,19 @@ def test_template_is_shipped_as_package_data(tmp_path):
         capture_output=True,
     )
     assert (build / "reachgate" / "render" / "templates" / "night_report.html.j2").is_file()
+
+
+def test_parameters_changed_outside_reachgate_break_the_row_checksum(night, tmp_path):
+    """The recorded parameters feed the pass rates, so the row checksum covers them."""
+    from reachgate.batch.store import load_summary
+    from reachgate.errors import ReachgateError
+
+    copy = tmp_path / "tampered.sqlite"
+    shutil.copy(night["store"], copy)
+    with sqlite3.connect(copy) as db:
+        db.execute(
+            "UPDATE cases SET parameters_json = json_set(parameters_json, '$.intensity', 'light')"
+            " WHERE json_extract(parameters_json, '$.intensity') = 'severe'"
+        )
+    with pytest.raises(ReachgateError, match="does not match its checksum"):
+        load_summary(copy)
