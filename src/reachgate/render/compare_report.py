@@ -12,6 +12,9 @@ from reachgate.batch.store import CaseResult, _finite
 from reachgate.render.check_report import plain_console
 from reachgate.version import __version__
 
+#: Short names of the kinds of change for the count line.
+SHORT = {"verdict": "verdict changed", "worst": "worst row changed", "only_store": "new",
+         "only_other": "gone"}  # fmt: skip
 #: The kinds of change, in the order they are listed, with their headings.
 CHANGES = {
     "verdict": "verdict changed",
@@ -98,8 +101,8 @@ def render_comparison_table(comparison: Comparison, width: int = 120) -> str:
     console.print(f"before: {data['other']}")
     for line in _setup_lines(comparison):
         console.print(line)
-    counts = ", ".join(f"{len(rows)} {title}" for _, title, rows in data["sections"])
-    console.print(f"{counts}; {data['unchanged']} unchanged")
+    counts = "; ".join(f"{SHORT[key]} {len(rows)}" for key, _, rows in data["sections"])
+    console.print(f"{counts}; unchanged {data['unchanged']}")
     for _, title, rows in data["sections"]:
         if not rows:
             continue
