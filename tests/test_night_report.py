@@ -325,7 +325,7 @@ def before(night, tmp_path_factory):
 def _compare(night, before, fmt: str, out: Path | None = None):
     args = ["scan", "--store", str(night["store"]), "--report", "--compare", str(before["store"])]
     args += ["--format", fmt, "--pictures", "0"] + ([] if out is None else ["--out", str(out)])
-    return CliRunner().invoke(app, args)
+    return CliRunner().invoke(app, args, env={"COLUMNS": "200"})  # case names unfolded
 
 
 def test_compare_json_lists_each_kind_of_change(night, before):

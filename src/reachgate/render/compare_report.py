@@ -10,6 +10,7 @@ import json
 from reachgate.batch.compare import Comparison, worst_row
 from reachgate.batch.store import CaseResult, _finite
 from reachgate.render.check_report import plain_console
+from reachgate.render.terminal import plain_table, table_width
 from reachgate.version import __version__
 
 #: Short names of the kinds of change for the count line.
@@ -90,11 +91,8 @@ def _setup_lines(comparison: Comparison) -> list[str]:
     return lines
 
 
-def render_comparison_table(comparison: Comparison, width: int = 120) -> str:
-    from rich import box
-    from rich.table import Table
-
-    console, buffer = plain_console(width, soft_wrap=True)
+def render_comparison_table(comparison: Comparison, width: int | None = None) -> str:
+    console, buffer = plain_console(width or table_width(), soft_wrap=True)
     data = comparison_rows(comparison)
     console.print(f"reachgate {__version__} scan comparison")
     console.print(f"now: {data['store']}")
@@ -107,7 +105,7 @@ def render_comparison_table(comparison: Comparison, width: int = 120) -> str:
         if not rows:
             continue
         console.print(f"{title}:")
-        table = Table(box=box.ASCII, pad_edge=False)
+        table = plain_table()
         for column in data["columns"]:
             table.add_column(column)
         for row in rows:
