@@ -656,6 +656,12 @@ def looks_like_csv(text: str) -> bool:
 
 def load_robot(path: str | Path) -> Robot:
     """Load and validate a robot TOML file. Raises ReachgateError naming file, key and value."""
+    return robot_from_dict(read_toml(path, "robot"), source=str(path))
+
+
+def read_toml(path: str | Path, what: str) -> dict[str, Any]:
+    """The parsed TOML of a description file; `what` names the kind of file in messages.
+    Raises ReachgateError naming the file (missing, a folder, empty, not UTF-8, not TOML)."""
     path = Path(path)
     label = str(path)
     try:
@@ -663,7 +669,7 @@ def load_robot(path: str | Path) -> Robot:
     except FileNotFoundError:
         raise ReachgateError(f"{label}: no such file") from None
     except IsADirectoryError:
-        raise ReachgateError(f"{label}: is a folder, not a robot file") from None
+        raise ReachgateError(f"{label}: is a folder, not a {what} file") from None
     except OSError as error:
         raise ReachgateError(f"{label}: cannot read ({error.strerror})") from None
     if not raw.strip():
@@ -681,7 +687,7 @@ def load_robot(path: str | Path) -> Robot:
             "text; save the file as UTF-8 (it may be Latin-1 or Windows-1252)"
         ) from None
     try:
-        data = tomllib.loads(text)
+        return tomllib.loads(text)
     except tomllib.TOMLDecodeError as error:
         if looks_like_csv(text):
             raise ReachgateError(
@@ -689,4 +695,3 @@ def load_robot(path: str | Path) -> Robot:
                 "file (TOML); are the arguments swapped?"
             ) from None
         raise ReachgateError(f"{label}: not valid TOML ({error})") from None
-    return robot_from_dict(data, source=label)
