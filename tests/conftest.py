@@ -58,3 +58,17 @@ def offset_wrist_arm(j1_deg: float = 180.0, j4_deg: float = 350.0) -> reachgate.
         ),
         source="tests",
     )
+
+
+def without_geometry(text: str) -> str:
+    """A robot file's text with its geometry keys (DESIGN §8) taken out: mount radius_m, link
+    radii and [[payload]] tables."""
+    kept, in_payload = [], False
+    for line in text.splitlines(keepends=True):
+        stripped = line.strip()
+        if stripped.startswith("["):
+            in_payload = stripped.startswith("[[payload]]")
+        if in_payload or stripped.startswith(("radius_m", "link_radius_m")):
+            continue
+        kept.append(line)
+    return "".join(kept)

@@ -14,9 +14,9 @@ from reachgate.model.rig import DEFAULT_MIN_M, DEFAULT_NEAR_M, load_rig
 from reachgate.model.robot import load_robot
 from reachgate.model.trajectory import Scenario, Trajectory
 
-from conftest import DEMO_ROBOT
+from conftest import DEMO_ROBOT, without_geometry
 
-ARM = DEMO_ROBOT.read_text()
+ARM = without_geometry(DEMO_ROBOT.read_text())
 
 
 def arm_with_geometry() -> str:

@@ -12,9 +12,9 @@ from reachgate.errors import ReachgateError
 from reachgate.model.geometry import Attach, Box, Capsule, LinkCapsules, Offset, Sphere
 from reachgate.model.robot import load_robot
 
-from conftest import DEMO_ROBOT
+from conftest import DEMO_ROBOT, without_geometry
 
-GOOD = DEMO_ROBOT.read_text()
+GOOD = without_geometry(DEMO_ROBOT.read_text())
 
 GEOMETRY = """
 [[payload]]
@@ -46,9 +46,9 @@ def load_text(tmp_path, text: str):
     return load_robot(path), path
 
 
-def test_robot_without_geometry_loads_and_names_every_part_missing():
+def test_robot_without_geometry_loads_and_names_every_part_missing(tmp_path):
     """Every part that has length is named; link5 (a = d = 0) adds none, so it is not."""
-    robot = load_robot(DEMO_ROBOT)
+    robot, _ = load_text(tmp_path, GOOD)
     assert robot.parts == ()
     assert robot.geometry_missing == (
         "base", "link1", "link2", "link3", "link4", "link6", "payload"

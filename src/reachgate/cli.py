@@ -222,8 +222,15 @@ def _refuse_ignored_rail_at(rail, rail_at) -> None:
 
 @app.command("check")
 def check_command(
-    robot: Annotated[Path, typer.Argument(help="Robot description (TOML).")],
-    trajectory: Annotated[Path, typer.Argument(help="Trajectory (CSV, Parquet or Arrow IPC).")],
+    ctx: typer.Context,
+    robot: Annotated[Path, typer.Argument(help="Robot description or rig file (TOML).")],
+    trajectory: Annotated[
+        Path,
+        typer.Argument(
+            help="Trajectory (CSV, Parquet or Arrow IPC); a rig's scenario (CSV) gives each "
+            "body's columns."
+        ),
+    ],
     place: PlaceOption = None,
     rail: RailOption = RailMode.fixed,
     rail_at: RailAtOption = None,
@@ -244,10 +251,10 @@ def check_command(
         typer.Option("--plot", help="Write a picture of every axis against its limits."),
     ] = None,
 ) -> None:
-    """Check one case: can the arm follow every sample of the trajectory?"""
+    """Check one case: can the arm (every arm of a rig) follow every sample of the trajectory?"""
     from reachgate.batch.scan import file_sha256
     from reachgate.checking.pipeline import check
-    from reachgate.model.robot import load_robot
+    from reachgate.model.rig import load_rig
     from reachgate.model.trajectory import load_trajectory
     from reachgate.render.check_report import render, write_joints
 
@@ -260,7 +267,17 @@ def check_command(
             place, rail, rail_at, rail_bandwidth, lag, lag_tol, lag_tol_deg, predict
         )
     )
-    model = _guarded(lambda: load_robot(robot))
+    rig = _guarded(lambda: load_rig(robot))
+    if not rig.alone:
+        _refuse_overwriting_inputs(
+            {"--out": out, "--joints-out": joints_out, "--plot": plot},
+            {f"robot file of {r.name}": Path(r.robot.source) for r in rig.robots},
+        )
+        if plot is not None:
+            _fail_bad_input("--plot: pictures of a rig check are not drawn yet; drop --plot")
+        given = _given(ctx, "rail", "rail_at", "rail_bandwidth")
+        _check_rig(rig, trajectory, settings, given, fmt, out, joints_out)
+    model = rig.robots[0].robot
     path = _guarded(lambda: load_trajectory(trajectory))
     report = _guarded(lambda: check(model, path, settings))
     inputs = {"robot_sha256": file_sha256(robot), "trajectory_sha256": file_sha256(trajectory)}
@@ -271,6 +288,37 @@ def check_command(
         from reachgate.render.pictures import plot_report
 
         _guarded(lambda: plot_report(report, model, plot))
+    raise typer.Exit(EXIT_PASS if report.passed else EXIT_FAIL)
+
+
+def _given(ctx: typer.Context, *names: str) -> bool:
+    """True when any of the named options was given on the command line."""
+    from click.core import ParameterSource
+
+    return any(ctx.get_parameter_source(n) is ParameterSource.COMMANDLINE for n in names)
+
+
+def _check_rig(rig, scenario_path, settings, rails_given, fmt, out, joints_out) -> None:
+    """`check RIG SCENARIO`: every robot and the clearance of every pair, one report."""
+    from reachgate.checking.rig_check import RailChoice, check_rig
+    from reachgate.model.trajectory import load_scenario
+    from reachgate.render.rig_report import render_rig, write_rig_joints
+
+    rails = None
+    if rails_given:
+        rails = RailChoice(settings.rail, settings.rail_at_m, settings.rail_bandwidth_hz)
+    from reachgate.batch.scan import file_sha256
+
+    scenario = _guarded(lambda: load_scenario(scenario_path))
+    report = _guarded(lambda: check_rig(rig, scenario, settings, rails))
+    inputs = {
+        "rig_sha256": file_sha256(rig.source),
+        "robot_sha256": {r.name: file_sha256(r.robot.source) for r in rig.robots},
+        "trajectory_sha256": file_sha256(scenario_path),
+    }
+    _write_or_print(render_rig(report, fmt.value, inputs), out)
+    if joints_out is not None:
+        _guarded(lambda: write_rig_joints(report, rig, joints_out))
     raise typer.Exit(EXIT_PASS if report.passed else EXIT_FAIL)
 
 
@@ -287,6 +335,33 @@ def robot_command(
 
     model = _guarded(lambda: load_robot(robot))
     _write_or_print(describe_robot(model), None)
+
+
+# --- rig ---
+
+
+@app.command("rig")
+def rig_command(
+    rig: Annotated[Path, typer.Argument(help="Rig file (TOML), or a robot file alone.")],
+    plot: Annotated[
+        Path | None, typer.Option("--plot", help="Write top and side views at home (PNG).")
+    ] = None,
+) -> None:
+    """Load, validate and describe a rig: robots, bases, obstacles, the pairs checked and not."""
+    from reachgate.model.rig import load_rig
+    from reachgate.render.rig_describe import describe_rig
+
+    _refuse_overwriting_inputs({"--plot": plot}, {"rig file": rig})
+    model = _guarded(lambda: load_rig(rig))
+    _write_or_print(_guarded(lambda: describe_rig(model)), None)
+    if plot is not None:
+        from reachgate.render.rig_picture import plot_rig
+
+        _refuse_overwriting_inputs(
+            {"--plot": plot},
+            {f"robot file of {r.name}": Path(r.robot.source) for r in model.robots},
+        )
+        _guarded(lambda: plot_rig(model, plot))
 
 
 # --- perturb ---

@@ -92,6 +92,8 @@ def advice(report: Report) -> str:
 
 #: Interval rows the table shows before it summarises the rest (JSON and CSV keep all).
 TABLE_MAX_ROWS = 40
+#: Clearance pairs the margins table shows, closest first (JSON keeps all).
+TABLE_MAX_PAIRS = 12
 
 
 def _rows_to_show(rows, max_rows: int):
@@ -161,6 +163,17 @@ def _margin_text(values: dict, key: str) -> str:
     return "not measured" if values[key] is None else f"{values[key]:.2f}"
 
 
+def rail_text(settings, has_rail: bool) -> str:
+    """How the rail was run: 'none', 'fixed', 'fixed at 3 m' or 'follow (0.5 Hz)'."""
+    if not has_rail:
+        return "none"
+    if settings.rail.value == "follow":
+        return f"follow ({settings.rail_bandwidth_hz:g} Hz)"
+    if settings.rail_at_m is not None:
+        return f"fixed at {settings.rail_at_m:g} m"
+    return "fixed"
+
+
 def render_table(report: Report, width: int | None = None, max_rows: int = TABLE_MAX_ROWS) -> str:
     """The colour-free text report: verdict, interval rows, margins, advice, cautions."""
 
@@ -171,12 +184,7 @@ def render_table(report: Report, width: int | None = None, max_rows: int = TABLE
 
     n_viol = sum(v.severity is Severity.VIOLATION for v in report.violations)
     n_near = len(report.violations) - n_viol
-    s = report.settings
-    rail = s.rail.value if "rail" in report.axis_names else "none"
-    if rail == "follow":
-        rail += f" ({s.rail_bandwidth_hz:g} Hz)"
-    elif rail == "fixed" and s.rail_at_m is not None:
-        rail += f" at {s.rail_at_m:g} m"
+    rail = rail_text(report.settings, "rail" in report.axis_names)
     branch = report.solution.branch.describe() if report.solution.branch else "kept from home"
     console.print(f"reachgate {report.tool_version}: {report.robot} / {report.trajectory}")
     header = [
@@ -190,6 +198,16 @@ def render_table(report: Report, width: int | None = None, max_rows: int = TABLE
         say(note, "note: ")
     verdict = "PASS" if report.passed else "FAIL"
     console.print(f"verdict: {verdict} ({n_viol} violation rows, {n_near} near rows)")
+    print_findings(console, report, max_rows, branch_explanations(report))
+    return tidy(buffer.getvalue())
+
+
+def print_findings(console, report, max_rows: int, branch_texts: list[str]) -> None:
+    """The interval rows (and what the branch rows mean), the margins, the advice and the
+    cautions of a report (one robot or a rig) onto a console."""
+
+    def say(text: str, first: str = "") -> None:
+        console.print(wrap_text(text, console.width, first), soft_wrap=True)
 
     if report.violations:
         rows = plain_table()
@@ -230,7 +248,7 @@ def render_table(report: Report, width: int | None = None, max_rows: int = TABLE
                 "--format csv or json); every row, grouped by check and axis:"
             )
             console.print(_group_table(report))
-        for text in branch_explanations(report):
+        for text in branch_texts:
             say(text, "branch: ")
 
     margins = plain_table()
@@ -238,18 +256,36 @@ def render_table(report: Report, width: int | None = None, max_rows: int = TABLE
     keys = ("position", "speed", "accel", "jerk")
     for key in keys:
         margins.add_column(f"{key} left", justify="right")
+    pairs = {}
     for axis, values in report.margins.items():
+        if "clearance" in values:
+            pairs[axis] = values["clearance"]
+            continue
         margins.add_row(axis, *(_margin_text(values, k) for k in keys))
     say(
         "margins: fraction of each limit left over the run "
         "(1 unused, 0 at it, < 0 beyond; not measured: no sample to measure it on)"
     )
     console.print(margins)
+    if pairs:
+        # the closest pairs first; an unmeasured margin counts as the worst
+        ranked = sorted(pairs.items(), key=lambda item: -math.inf if item[1] is None else item[1])
+        clearance = plain_table()
+        clearance.add_column("pair (closest first)")
+        clearance.add_column("clearance left", justify="right")
+        for pair, value in ranked[:TABLE_MAX_PAIRS]:
+            clearance.add_row(pair, _margin_text({"clearance": value}, "clearance"))
+        console.print(clearance)
+        if len(ranked) > TABLE_MAX_PAIRS:
+            least = _margin_text({"clearance": ranked[TABLE_MAX_PAIRS][1]}, "clearance")
+            say(
+                f"{len(ranked) - TABLE_MAX_PAIRS} more pairs, the closest of them {least} "
+                "left (all pairs: --format json)"
+            )
     say(advice(report), "advice: ")
     console.print("cautions:")
     for line in SAFETY_CAUTIONS:
         say(line, "  - ")
-    return tidy(buffer.getvalue())
 
 
 def branch_explanations(report: Report) -> list[str]:
