@@ -217,3 +217,13 @@ def test_rig_joints_out_has_every_robots_axes(tmp_path, short_calm):
     assert header[-2:] == ["table.j6_deg", "table.reachable"] and len(header) == 1 + 8 + 7
     first = lines[3].split(",")
     assert len(first) == len(header) and first[header.index("carrier.reachable")] == "1"
+
+
+def test_rig_plot_writes_the_clearance_picture_and_one_per_robot(tmp_path, short_calm):
+    case = tmp_path / "short.csv"
+    reachgate.model.trajectory.write_scenario(case, short_calm)
+    picture = tmp_path / "check.png"
+    result = run("check", RIG, case, "--plot", picture)
+    assert result.exit_code in (0, 1), result.output
+    for written in (picture, tmp_path / "check-carrier.png", tmp_path / "check-table.png"):
+        assert written.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"

@@ -273,10 +273,8 @@ def check_command(
             {"--out": out, "--joints-out": joints_out, "--plot": plot},
             {f"robot file of {r.name}": Path(r.robot.source) for r in rig.robots},
         )
-        if plot is not None:
-            _fail_bad_input("--plot: pictures of a rig check are not drawn yet; drop --plot")
         given = _given(ctx, "rail", "rail_at", "rail_bandwidth")
-        _check_rig(rig, trajectory, settings, given, fmt, out, joints_out)
+        _check_rig(rig, trajectory, settings, given, fmt, out, joints_out, plot)
     model = rig.robots[0].robot
     path = _guarded(lambda: load_trajectory(trajectory))
     report = _guarded(lambda: check(model, path, settings))
@@ -298,7 +296,7 @@ def _given(ctx: typer.Context, *names: str) -> bool:
     return any(ctx.get_parameter_source(n) is ParameterSource.COMMANDLINE for n in names)
 
 
-def _check_rig(rig, scenario_path, settings, rails_given, fmt, out, joints_out) -> None:
+def _check_rig(rig, scenario_path, settings, rails_given, fmt, out, joints_out, plot) -> None:
     """`check RIG SCENARIO`: every robot and the clearance of every pair, one report."""
     from reachgate.checking.rig_check import RailChoice, check_rig
     from reachgate.model.trajectory import load_scenario
@@ -319,6 +317,10 @@ def _check_rig(rig, scenario_path, settings, rails_given, fmt, out, joints_out) 
     _write_or_print(render_rig(report, fmt.value, inputs), out)
     if joints_out is not None:
         _guarded(lambda: write_rig_joints(report, rig, joints_out))
+    if plot is not None:
+        from reachgate.render.rig_picture import plot_rig_report
+
+        _guarded(lambda: plot_rig_report(report, rig, plot))
     raise typer.Exit(EXIT_PASS if report.passed else EXIT_FAIL)
 
 

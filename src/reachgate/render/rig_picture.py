@@ -1,5 +1,7 @@
 """Pictures of a rig: top (x-y) and side (x-z) views of every robot's shapes and the cell's
-obstacles, in the rig frame (`reachgate rig --plot`, and the rig check's picture).
+obstacles, in the rig frame (`reachgate rig --plot`), and the pictures of a rig check
+(`check RIG SCENARIO --plot`): the clearance of the pairs that come near, the rig at the
+moment of least clearance, and each robot's axis panels.
 
 Shapes are drawn as their outlines projected on the view plane (capsules as rounded bars,
 boxes as the hull of their corners); the DH chain of each robot is drawn as a thin line, so
@@ -13,6 +15,8 @@ from pathlib import Path
 
 import numpy as np
 
+from reachgate.checking.intervals import Check, Severity
+from reachgate.checking.rig_check import RigReport
 from reachgate.kinematics.bodies import (
     HalfSpace,
     OrientedBox,
@@ -22,10 +26,21 @@ from reachgate.kinematics.bodies import (
     pose_parts,
 )
 from reachgate.model.rig import Rig
-from reachgate.render.pictures import _new_figure, _require_png, _save
+from reachgate.render.pictures import (
+    _HATCHES,
+    _new_figure,
+    _require_png,
+    _save,
+    _shade,
+    decimate,
+    plot_report,
+)
 
 #: Figure size of the rig picture: 1400 × 650 pixels.
 RIG_SIZE_IN = (14.0, 6.5)
+#: Figure size of a rig check's picture: 1400 × 1100 pixels.
+RIG_REPORT_SIZE_IN = (14.0, 11.0)
+_MARKERS = ("o", "s", "^", "D", "v", "x")
 #: The views: (title, index of the horizontal axis, index of the vertical axis).
 VIEWS = (("top view (from +z)", 0, 1), ("side view (from -y)", 0, 2))
 #: Points on each rounded end of a projected capsule.
@@ -121,11 +136,9 @@ def _points(primitive) -> np.ndarray:
     return np.empty((0, 3))
 
 
-def plot_rig(rig: Rig, path: str | Path, q_by_robot: dict | None = None, title: str = "") -> Path:
-    """Write the rig's top and side views as PNG. q_by_robot: robot name -> (n_axes,) axes to
-    draw it at (default: home). Returns the path."""
-    path = _require_png(Path(path))
-    figure = _new_figure(RIG_SIZE_IN)
+def draw_rig_views(view_axes, rig: Rig, q_by_robot: dict | None = None) -> None:
+    """Draw the top and side views of the rig into two matplotlib axes. q_by_robot: robot
+    name -> (n_axes,) axes to draw it at (default: home)."""
     posed = []
     for k, placed in enumerate(rig.robots):
         robot = placed.robot
@@ -141,7 +154,7 @@ def plot_rig(rig: Rig, path: str | Path, q_by_robot: dict | None = None, title: 
         + [ends for r in rig.robots if (ends := placed_rail(r)) is not None]
     )
     lo, hi = every.min(axis=0) - MARGIN_M, every.max(axis=0) + MARGIN_M
-    for ax, (view, u, v) in zip(figure.subplots(1, 2), VIEWS, strict=True):
+    for ax, (view, u, v) in zip(view_axes, VIEWS, strict=True):
         for name, prims, chain, style in posed:
             for prim in prims:
                 ax.fill(*_outline(prim, u, v).T, facecolor="none", edgecolor="black",
@@ -168,6 +181,82 @@ def plot_rig(rig: Rig, path: str | Path, q_by_robot: dict | None = None, title: 
         ax.set_title(view)
         ax.grid(True, linewidth=0.3)
         ax.legend(loc="upper left", fontsize=8)
-    figure.suptitle(title or f"rig {rig.name} at home (rig frame)")
+
+
+def plot_rig(rig: Rig, path: str | Path) -> Path:
+    """Write the rig's top and side views at home as PNG. Returns the path."""
+    path = _require_png(Path(path))
+    figure = _new_figure(RIG_SIZE_IN)
+    draw_rig_views(figure.subplots(1, 2), rig)
+    figure.suptitle(f"rig {rig.name} at home (rig frame)")
     _save(figure, path)
     return path
+
+
+def least_clearance_sample(report: RigReport) -> tuple[int, str | None, float | None]:
+    """(sample index, pair, distance m) of the least clearance measured over the run; the
+    first sample and None when no pair came within near_m."""
+    closest = {} if report.clearance is None else report.clearance.closest_m
+    best = (0, None, None)
+    for pair, distance in closest.items():
+        if np.isfinite(distance).any():
+            i = int(np.nanargmin(distance))
+            if best[2] is None or distance[i] < best[2]:
+                best = (i, pair, float(distance[i]))
+    return best
+
+
+def robot_picture_path(path: Path, robot_name: str) -> Path:
+    """Where a rig check writes one robot's axis picture: FILE-ROBOT.png beside FILE.png."""
+    return path.with_name(f"{path.stem}-{robot_name.replace(' ', '_')}{path.suffix}")
+
+
+def plot_rig_report(report: RigReport, rig: Rig, path: str | Path) -> list[Path]:
+    """The pictures of a rig check: FILE.png with the clearance of every pair that came within
+    near_m (against min_m and near_m, violation rows hatched) and the rig from above and from
+    the side at the moment of least clearance; FILE-ROBOT.png with each robot's axis panels.
+    Returns the paths written."""
+    path = _require_png(Path(path))
+    figure = _new_figure(RIG_REPORT_SIZE_IN)
+    grid = figure.add_gridspec(2, 2, height_ratios=(1.0, 1.3))
+    ax = figure.add_subplot(grid[0, :])
+    t = report.t_s
+    limits = rig.clearance
+    closest = {} if report.clearance is None else report.clearance.closest_m
+    rows = [r for r in report.violations
+            if r.check is Check.CLEARANCE and r.severity is Severity.VIOLATION]  # fmt: skip
+    _shade(ax, rows, t, lambda r: _HATCHES[r.severity.value])
+    for k, (pair, distance) in enumerate(sorted(closest.items())):
+        t_drawn, drawn = decimate(t[np.isfinite(distance)], distance[np.isfinite(distance)])
+        ax.plot(t_drawn, drawn * 1000.0, color="black", linewidth=1.0, marker=_MARKERS[k % 6],
+                markevery=max(1, t_drawn.size // 15), markersize=4, markerfacecolor="white",
+                linestyle=("-", "--", ":", "-.")[k % 4], label=pair)  # fmt: skip
+    ax.axhline(limits.min_m * 1000.0, color="black", linewidth=1.4, label="min_m (violation)")
+    ax.axhline(limits.near_m * 1000.0, color="black", linewidth=0.8, linestyle="--",
+               label="near_m")  # fmt: skip
+    ax.set_xlim(t[0], t[-1])
+    ax.set_ylim(min(0.0, *(np.nanmin(d) * 1000.0 for d in closest.values())) - 10.0,
+                limits.near_m * 1000.0 * 2.0)  # fmt: skip
+    ax.set_xlabel("time, s")
+    ax.set_ylabel("distance, mm")
+    title = "clearance of every pair that comes within near_m (NaN gaps: proved farther)"
+    if not closest:
+        title = "clearance: no pair comes within near_m"
+    ax.set_title(title, loc="left", fontsize=10)
+    ax.grid(True, color="0.85", linewidth=0.5)
+    ax.legend(loc="upper right", fontsize=7, ncol=2, framealpha=1.0)
+    index, pair, distance = least_clearance_sample(report)
+    q_by_robot = {name: r.solution.q[index] for name, r in report.robots.items()}
+    draw_rig_views([figure.add_subplot(grid[1, 0]), figure.add_subplot(grid[1, 1])], rig,
+                   q_by_robot)  # fmt: skip
+    verdict = "PASS" if report.passed else "FAIL"
+    moment = f"at t = {t[index]:.3f} s"
+    if pair is not None:
+        moment += f", least clearance {pair}: {distance * 1000.0:.1f} mm"
+    figure.suptitle(f"rig {report.robot} / {report.trajectory}: {verdict}; views {moment}")
+    _save(figure, path)
+    written = [path]
+    for placed in rig.robots:
+        own = robot_picture_path(path, placed.name)
+        written.append(plot_report(report.robots[placed.name], placed.robot, own))
+    return written
