@@ -298,6 +298,7 @@ def _given(ctx: typer.Context, *names: str) -> bool:
 
 def _check_rig(rig, scenario_path, settings, rails_given, fmt, out, joints_out, plot) -> None:
     """`check RIG SCENARIO`: every robot and the clearance of every pair, one report."""
+    from reachgate.batch.scan import file_sha256
     from reachgate.checking.rig_check import RailChoice, check_rig
     from reachgate.model.trajectory import load_scenario
     from reachgate.render.rig_report import render_rig, write_rig_joints
@@ -305,8 +306,6 @@ def _check_rig(rig, scenario_path, settings, rails_given, fmt, out, joints_out, 
     rails = None
     if rails_given:
         rails = RailChoice(settings.rail, settings.rail_at_m, settings.rail_bandwidth_hz)
-    from reachgate.batch.scan import file_sha256
-
     scenario = _guarded(lambda: load_scenario(scenario_path))
     report = _guarded(lambda: check_rig(rig, scenario, settings, rails))
     inputs = {
