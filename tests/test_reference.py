@@ -18,7 +18,7 @@ from reachgate.model.robot import robot_from_dict
 from conftest import REPO
 
 REFERENCE = REPO / "docs" / "reference.md"
-DOCUMENTED_COMMANDS = ("check", "scan", "perturb", "envelope", "robot", "delay", "place")
+DOCUMENTED_COMMANDS = ("check", "scan", "perturb", "envelope", "robot", "rig", "delay", "place")
 
 
 def reference_text() -> str:
