@@ -429,7 +429,11 @@ def perturb_command(
 
 @app.command("envelope")
 def envelope_command(
-    robot: Annotated[Path, typer.Argument(help="Robot description (TOML).")],
+    robot: Annotated[Path, typer.Argument(help="Robot description or rig file (TOML).")],
+    robot_name: Annotated[
+        str | None,
+        typer.Option("--robot", help="A rig: the robot whose envelope to find (its own cell)."),
+    ] = None,
     pose: Annotated[
         str | None,
         typer.Option(
@@ -466,7 +470,6 @@ def envelope_command(
     """Largest sinusoid amplitude the arm can follow around a pose, per direction and frequency."""
     from reachgate.checking.pipeline import Placement
     from reachgate.checking.rail import RailPolicy
-    from reachgate.model.robot import load_robot
     from reachgate.motion.envelope import (
         envelope,
         frequencies_from_range,
@@ -483,7 +486,7 @@ def envelope_command(
     if plot is not None and plot.suffix.lower() != ".png":
         _fail_bad_input(f"--plot: {plot}: the picture is written as PNG, name it *.png")
     _refuse_overwriting_inputs({"--out": out, "--plot": plot}, {"robot file": robot})
-    model = _guarded(lambda: load_robot(robot))
+    model = _guarded(lambda: _robot_of_rig(robot, robot_name))
     result = _guarded(
         lambda: envelope(
             model,
@@ -502,6 +505,21 @@ def envelope_command(
 
         _guarded(lambda: plot_envelope(result, plot))
     raise typer.Exit(EXIT_PASS)
+
+
+def _robot_of_rig(path: Path, name: str | None):
+    """The robot of a robot file, or the robot `name` of a rig file (in its own cell frame)."""
+    from reachgate.model.rig import load_rig
+
+    rig = load_rig(path)
+    if name is None:
+        if len(rig.robots) > 1:
+            names = ", ".join(r.name for r in rig.robots)
+            raise ReachgateError(f"{path}: a rig of robots {names}; pick one with --robot")
+        return rig.robots[0].robot
+    if rig.alone:
+        raise ReachgateError(f"--robot: {path} is a robot file, not a rig")
+    return rig.robot(name).robot
 
 
 # --- scan ---
