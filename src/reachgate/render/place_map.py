@@ -82,7 +82,7 @@ def plot_score_map(result: PlacementResult, path: str | Path) -> Path:
         if k not in (i, j)
     ]
     steps = sorted(set(grid.steps))
-    step_text = ", ".join("full" if k == 1 else f"every {k}th sample" for k in steps)
+    step_text = ", ".join("full" if k == 1 else f"1 sample in {k}" for k in steps)
     ax.set_title(
         f"{result.robot}: score over {grid.x.name} and {grid.y.name}"
         + (f", {', '.join(held)} (best)" if held else "")

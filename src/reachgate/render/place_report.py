@@ -55,7 +55,7 @@ def render_table(result: PlacementResult) -> str:
         f"       {_binding_text(start)}" + ("" if start.passed else " - fails"),
     ]
     steps = sorted(set(result.steps))
-    step_text = ", ".join("full cases" if k == 1 else f"every {k}th sample" for k in steps)
+    step_text = ", ".join("full cases" if k == 1 else f"1 sample in {k}" for k in steps)
     lines.append(
         f"search: seed {result.seed}, {result.placements_scored} placements scored at "
         f"{step_text} on {len(result.binding_cases)} binding case(s); "

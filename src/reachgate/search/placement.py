@@ -7,9 +7,10 @@ The search, for one case or a batch, maximises the score (search/score.py) over 
    polish of the best point.
 2. Cheap early checks: the search checks each case at a thinned time step, every 16th
    sample at first (fewer for short cases). After each round the best point is checked on
-   the full cases; a case whose thinned score there differs from its full score by more
-   than COARSE_TOLERANCE gets a finer step, and the search resumes from its population. So
-   smooth paths are searched thinned, and gusty ones only as finely as their answer needs.
+   the full binding cases (and once on every other case); a case whose thinned score there
+   differs from its full score by more than COARSE_TOLERANCE gets the coarsest finer step
+   that keeps it, and the search resumes from its population. So smooth paths are searched
+   thinned, and gusty ones only as finely as their answer needs.
 3. Binding cases: a batch is searched on the cases that bind it, first the worst at the
    starting placement; after each round the best point is scored on every other case, a
    case that binds harder joins and the search resumes (constraint generation for a
@@ -286,6 +287,7 @@ def place(
 
         population = None
         rounds = 0
+        validated: set[int] = set()
         while rounds < MAX_ROUNDS:
             rounds += 1
             stage = f"searching (round {rounds})"
@@ -315,23 +317,15 @@ def place(
             )
             best_x = polished.x if polished.fun <= found.fun else found.x
             best_so_far = -float(min(polished.fun, found.fun))
-            # does the best keep its score on the full cases, and on the other cases?
-            at_best = [settings_at(settings, vary, best_x)]
-            thinned_cases = [c for c in active if steps[c] > 1]
-            changed = False
-            if thinned_cases:
-                thin = evaluator.scores(at_best, thinned_cases, steps)[0]
-                full = evaluator.scores(at_best, thinned_cases, full_steps)[0]
-                for c, t, f in zip(thinned_cases, thin, full, strict=True):
-                    if abs(t.binding.score - f.binding.score) > COARSE_TOLERANCE:
-                        steps[c] = _finer(steps[c])
-                        changed = True
+            # the best on the full cases: does each keep its thinned score, does another bind?
+            changed = _settle_steps(evaluator, settings_at(settings, vary, best_x), steps,
+                                    active, validated)  # fmt: skip
+            at_best = evaluator.scores([settings_at(settings, vary, best_x)], every_case, steps)[0]
             others = [c for c in every_case if c not in active]
             if others:
-                outcomes = evaluator.scores(at_best, others, steps)[0]
-                worst = min(range(len(others)), key=lambda j: outcomes[j].binding.score)
-                if outcomes[worst].binding.score < best_so_far - BINDING_TOLERANCE:
-                    active.append(others[worst])
+                worst = min(others, key=lambda c: at_best[c].binding.score)
+                if at_best[worst].binding.score < best_so_far - BINDING_TOLERANCE:
+                    active.append(worst)
                     changed = True
             if not changed:
                 break
@@ -371,6 +365,32 @@ def place(
             rounds=rounds,
             score_map=score_map,
         )
+
+
+def _settle_steps(evaluator, at_best, steps: list[int], active, validated: set[int]) -> bool:
+    """Check the best placement in full on every binding case and every case not yet
+    validated; where a case's thinned score there is more than COARSE_TOLERANCE off, give it
+    the coarsest finer step that keeps it (1 at worst). -> whether a binding case's changed."""
+    todo = [c for c in range(len(steps)) if steps[c] > 1 and (c in active or c not in validated)]
+    if not todo:
+        return False
+    full = dict(zip(todo, evaluator.scores([at_best], todo, [1] * len(steps))[0], strict=True))
+    changed = False
+    while todo:
+        thin = evaluator.scores([at_best], todo, steps)[0]
+        off = []
+        for c, outcome in zip(todo, thin, strict=True):
+            if abs(outcome.binding.score - full[c].binding.score) <= COARSE_TOLERANCE:
+                validated.add(c)
+            else:
+                steps[c] = _finer(steps[c])
+                changed |= c in active
+                if steps[c] > 1:
+                    off.append(c)
+                else:
+                    validated.add(c)
+        todo = off
+    return changed
 
 
 def _finalists(vary, best_x, population, energies) -> list[np.ndarray]:
