@@ -66,10 +66,11 @@ def _hold(case_paths: list[str]) -> None:
 
 
 def _score(settings, case: int) -> float:
-    import reachgate
+    """A case's score at a placement, checked in full as the search's final checks are."""
+    from reachgate.checking.pipeline import check
     from reachgate.search.score import report_binding
 
-    report = reachgate.check(_HELD["robot"], _HELD["cases"][case], settings, verify_slowdown=False)
+    report = check(_HELD["robot"], _HELD["cases"][case], settings, verify_slowdown=False)
     return report_binding(report, _HELD["span"]).score
 
 
