@@ -3,7 +3,10 @@
 A drone mock-up, carried by the demo rail arm, flies a landing approach onto a pad on the
 roof of a moving vehicle. The path is the drone's pose relative to the pad's mock-up, given
 directly in the cell frame (the default placement). Sampling is 250 Hz with ±10 % jitter, as
-a real-time simulation's log would be. Run: python scripts/make_demo_cases.py
+a real-time simulation's log would be. Every case starts and ends at rest: the approach
+itself is a minimum-jerk move, and the sway on top of it fades in and out over RAMP_S (a
+minimum-jerk ramp), as a rig run must (reachgate checks `--ends rest` by default).
+Run: python scripts/make_demo_cases.py
 """
 
 from __future__ import annotations
@@ -15,6 +18,8 @@ import numpy as np
 from reachgate.model.transforms import matrix_to_quat, rpy_to_matrix
 
 RATE_HZ = 250.0
+#: Fade-in and fade-out of the sway, s (at most a quarter of the case).
+RAMP_S = 2.0
 OUT = Path(__file__).resolve().parents[1] / "trajectories"
 
 
@@ -27,13 +32,19 @@ def approach(duration_s: float, seed: int, *, lateral_m=0.0, pitch_up_deg=0.0, g
     rng = np.random.default_rng(seed)
     step = 1.0 / RATE_HZ
     t = np.cumsum(np.concatenate([[0.0], step * rng.uniform(0.9, 1.1, int(duration_s * RATE_HZ))]))
-    s = minimum_jerk(np.clip(t / duration_s, 0.0, 1.0))
+    s = minimum_jerk(np.clip(t / t[-1], 0.0, 1.0))
+    ramp_s = min(RAMP_S, duration_s / 4)
+    fade = minimum_jerk(np.clip(t / ramp_s, 0.0, 1.0)) * minimum_jerk(
+        np.clip((t[-1] - t) / ramp_s, 0.0, 1.0)
+    )
     x = 2.9 + 4.6 * s
-    y = 0.05 * np.sin(2 * np.pi * 0.3 * t) + lateral_m * s
-    z = 2.1 - 0.8 * s + 0.02 * np.sin(2 * np.pi * 0.7 * t)
-    roll = np.radians(3.0) * np.sin(2 * np.pi * 0.5 * t)
-    pitch = np.radians(3.0) * np.sin(2 * np.pi * 0.4 * t + 1.0) - np.radians(pitch_up_deg) * s
-    yaw = np.radians(10.0) * np.sin(2 * np.pi * 0.05 * t)
+    y = fade * 0.05 * np.sin(2 * np.pi * 0.3 * t) + lateral_m * s
+    z = 2.1 - 0.8 * s + fade * 0.02 * np.sin(2 * np.pi * 0.7 * t)
+    roll = fade * np.radians(3.0) * np.sin(2 * np.pi * 0.5 * t)
+    pitch = (
+        fade * np.radians(3.0) * np.sin(2 * np.pi * 0.4 * t + 1.0) - np.radians(pitch_up_deg) * s
+    )
+    yaw = fade * np.radians(10.0) * np.sin(2 * np.pi * 0.05 * t)
     if gust:
         # a gust burst in the middle of the approach, 2.5 Hz roll and 1.8 Hz pitch
         burst = np.exp(-0.5 * ((t - 0.5 * duration_s) / 2.0) ** 2)

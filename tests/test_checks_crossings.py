@@ -39,6 +39,11 @@ CROSSING_TOL_SAMPLES = 2
 DEG = math.pi / 180.0
 
 
+#: The analytic cases are windows cut out of endless sinusoids, so they are checked with free
+#: ends (DESIGN §11); rest at the ends has its own analytic test (tests/test_ends.py).
+WINDOW = reachgate.CheckSettings(ends=reachgate.Ends.FREE)
+
+
 @pytest.fixture(scope="module")
 def demo():
     return reachgate.load_robot(DEMO_ROBOT)
@@ -134,7 +139,7 @@ def test_rate_limit_crossings_are_found_at_the_analytic_times(demo, name, jitter
     t = sample_times(seed, jitter)
     phase = -order * math.pi / 2
     _, path = joint_case(demo, t, joint, demo.home[1 + joint], amplitude, omega, phase)
-    report = reachgate.check(demo, path)
+    report = reachgate.check(demo, path, WINDOW)
     expected = abs_above(omega, 0.0, 1.0 / ratio, t[-1])
     assert_rows_match(report, t, {(check, axis.name): expected})
     assert report.verdict is reachgate.Verdict.FAIL
@@ -166,7 +171,7 @@ def test_joint_range_crossings_are_found_at_the_analytic_times(
     centre, amplitude = centre_deg * DEG, amplitude_deg * DEG
     assert centre - amplitude > axis.lower + 5 * DEG
     _, path = joint_case(demo, t, joint, centre, amplitude, 1.0)
-    report = reachgate.check(demo, path)
+    report = reachgate.check(demo, path, WINDOW)
     expected = above(1.0, 0.0, (axis.upper - centre) / amplitude, t[-1])
     assert_rows_match(report, t, {(Check.POSITION, axis.name): expected})
     for row in report.violations:
@@ -181,7 +186,7 @@ def test_wrist_singularity_when_j5_passes_through_zero(demo):
     t = sample_times(551, 0.0)
     omega = 0.6
     _, path = joint_case(demo, t, 4, 20.0 * DEG, -40.0 * DEG, omega)
-    report = reachgate.check(demo, path)
+    report = reachgate.check(demo, path, WINDOW)
     rows = [r for r in report.violations if r.check is Check.SINGULARITY]
     assert len(rows) == 2 and all(r.axis == "wrist" for r in rows)  # two passages
     floor = demo.thresholds.wrist_min_rad
@@ -238,7 +243,7 @@ def busy_path(demo):
     path = reachgate.Trajectory.from_arrays(
         t, cell_T_tool[:, :3, 3], matrix_to_quat(cell_T_tool[:, :3, :3]), name="busy"
     )
-    assert reachgate.check(demo, path).passed  # the premise: tightening starts from a pass
+    assert reachgate.check(demo, path, WINDOW).passed  # the premise: tightening starts from a pass
     return path
 
 
@@ -256,8 +261,8 @@ def test_tightening_a_limit_never_turns_a_fail_into_a_pass(
     """Common practice (monotonicity): with one limit tightened further, a failing case still
     fails, and the margin of that rate limit can only shrink."""
     tight = loose * tighter_by
-    loose_report = reachgate.check(_scaled_robot(axis_index, kind, loose), busy_path)
-    tight_report = reachgate.check(_scaled_robot(axis_index, kind, tight), busy_path)
+    loose_report = reachgate.check(_scaled_robot(axis_index, kind, loose), busy_path, WINDOW)
+    tight_report = reachgate.check(_scaled_robot(axis_index, kind, tight), busy_path, WINDOW)
     if not loose_report.passed:
         assert not tight_report.passed
     if kind != "range":

@@ -53,7 +53,9 @@ def test_json_report_has_the_design_keys():
         "slowdown",
         "settings",
         "inputs",
+        "notes",
     }
+    assert report["settings"]["ends"] == "rest" and report["settings"]["rail"] == "follow"
     assert report["robot"] == "demo rail arm"
     assert report["trajectory"] == "approach_gusty.csv"
     row = report["violations"][0]

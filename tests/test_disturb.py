@@ -348,7 +348,7 @@ def test_displacement_and_angle_spread_match_the_model_integrals(gust_run, rate_
 
 CASE_RATES_HZ = (250, 1000)
 CASE_RUN_S = 120.0
-CASE_COUNT = 5  # 5 x 118 s per rate: accel RMS within ~1.8 %, jerk within ~0.6-1 % (1 sigma)
+CASE_COUNT = 5  # 5 x 116 s per rate: accel RMS within ~1.8 %, jerk within ~0.6-1 % (1 sigma)
 CASE_END_S = 0.1  # the last samples' one-sided derivative windows are left out
 RATE_REL_TOL = 0.10  # brief: std at 250 Hz and at 1000 Hz within ~10 % of each other
 CASE_SETTINGS = dryden.dryden_settings(
@@ -369,12 +369,13 @@ def still_nominal(fs_hz):
 @pytest.fixture(scope="module")
 def case_derivatives():
     """{fs: (acceleration, jerk)}, each (M, 6): x, y, z (m) and the rotation vector θ (rad)
-    of case minus nominal, after the fade-in, estimated by reachgate.derivatives, pooled."""
+    of case minus nominal, between the fade-in and the fade-out, estimated by
+    reachgate.derivatives, pooled."""
     out = {}
     for fs, seed in zip(CASE_RATES_HZ, (401, 402), strict=True):
         nominal = still_nominal(fs)
         t = nominal.t_s
-        keep = (t > disturb.FADE_IN_S) & (t < t[-1] - CASE_END_S)
+        keep = (t > disturb.FADE_IN_S) & (t < t[-1] - disturb.FADE_IN_S - CASE_END_S)
         nominal_R_T = np.swapaxes(quat_to_matrix(nominal.scenario_q_wxyz), -1, -2)
         acc, jerk = [], []
         for case in disturb.make_disturbance_cases(nominal, CASE_COUNT, seed):
@@ -428,7 +429,7 @@ def test_case_acceleration_and_jerk_match_the_spectrum_through_the_model(case_de
     checks = len(CASE_RATES_HZ) * 2 * 6
     z = stats.norm.ppf(1 - FALSE_ALARM / (2 * checks))
     for fs in CASE_RATES_HZ:
-        kept_s = CASE_COUNT * (CASE_RUN_S - disturb.FADE_IN_S - CASE_END_S)
+        kept_s = CASE_COUNT * (CASE_RUN_S - 2 * disturb.FADE_IN_S - CASE_END_S)
         for k, order in enumerate((2, 3)):
             true_var, expected, squared = case_spectrum_integrals(fs, order)
             rel_se = 0.5 * np.sqrt(2 * math.pi * squared / kept_s) / expected
@@ -505,7 +506,7 @@ def test_case_seed_in_the_header_regenerates_that_case():
     case = disturb.make_disturbance_cases(nominal, 3, 31, washout_s=0.6)[2]
     s = dryden.dryden_settings(dryden.DEFAULT_ALTITUDE_M, dryden.DEFAULT_AIRSPEED_M_S)
     response = disturb.dryden_response(nominal.t_s, s, 0.6, case.case_seed)
-    fade = disturb.fade_in(nominal.t_s - nominal.t_s[0])[:, None]
+    fade = disturb.fade_in_out(nominal.t_s)[:, None]
     np.testing.assert_allclose(
         case.trajectory.scenario_p_m - nominal.scenario_p_m, fade * response.displacement_m,
         atol=1e-12,

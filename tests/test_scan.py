@@ -54,8 +54,12 @@ def sway_case(robot, amplitude_m: float, seed: int, duration_s: float = 6.0, rat
     t = np.cumsum(np.r_[0.0, rng.uniform(0.9, 1.1, n) / rate_hz])
     home = forward(robot, robot.home[None])[0]
     w = 2 * np.pi * SWAY_HZ
-    s = 1.0 - np.cos(w * t)  # starts at rest: no step in speed at t = 0
-    p = home[:3, 3] + amplitude_m * np.column_stack([0.3 * s, s, 0.5 * np.sin(0.5 * w * t)])
+    # faded in and out over 1 s (septic smoothstep): starts and ends at rest, as a rig case
+    # must (check --ends rest)
+    u = np.clip(np.minimum(t, t[-1] - t), 0.0, 1.0)
+    fade = u**4 * (35.0 + u * (-84.0 + u * (70.0 - 20.0 * u)))
+    s = fade * (1.0 - np.cos(w * t))
+    p = home[:3, 3] + amplitude_m * np.column_stack([0.3 * s, s, 0.5 * fade * np.sin(0.5 * w * t)])
     zeros = np.zeros_like(t)
     rot = home[:3, :3] @ rpy_to_matrix(np.column_stack([0.5 * amplitude_m * s, zeros, zeros]))
     return Trajectory.from_arrays(t, p, matrix_to_quat(rot))
@@ -193,7 +197,7 @@ def test_table_marks_slowdowns_that_leave_other_violations(batch):
             assert slow == f"{case.slowdown:.3f}"  # time stretch clears every row
         elif band == "reach":
             assert slow in ("-", f"{case.slowdown:.3f}*") if case.slowdown else slow == "-"
-    assert "slow-down*: clears the speed, accel and jerk rows only" in text
+    assert "slow-down*: clears the speed, accel, jerk and lag rows only" in text
 
 
 def test_counts_per_check_add_up_over_the_batch(batch):

@@ -15,7 +15,7 @@ Library use::
 
 from reachgate.checking.intervals import Check, Severity, Violation
 from reachgate.checking.lag import Prediction
-from reachgate.checking.pipeline import CheckSettings, Placement, Report, Verdict
+from reachgate.checking.pipeline import CheckSettings, Ends, Placement, Report, Verdict
 from reachgate.checking.rail import RailPolicy
 from reachgate.checking.rig_check import RailChoice, RigReport
 from reachgate.checking.rig_check import check_any as check
@@ -29,6 +29,7 @@ from reachgate.version import __version__
 __all__ = [
     "Check",
     "CheckSettings",
+    "Ends",
     "Placement",
     "PlacementResult",
     "Prediction",

@@ -82,9 +82,12 @@ def _fail_bad_input(message: str) -> None:
 
 
 def _guarded(call: Callable[[], T]) -> T:
-    """Run a library call; bad input becomes one stderr line and exit code 2."""
+    """Run a library call; bad input becomes one stderr line and exit code 2. Stray numerical
+    warnings (RuntimeWarning) are kept off the terminal: undefined values stop a check by name."""
     try:
-        return call()
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)
+            return call()
     except ClusterLostError:
         raise  # its own exit code, set by the scan command
     except ReachgateError as error:
@@ -167,6 +170,21 @@ PredictOption = Annotated[
 ]
 
 
+class EndsMode(str, Enum):
+    rest = "rest"
+    free = "free"
+
+
+EndsOption = Annotated[
+    EndsMode,
+    typer.Option(
+        "--ends",
+        help="rest: the arm is held still before the first sample and after the last; "
+        "free: the path is cut out of a longer run.",
+    ),
+]
+
+
 def settings_from_options(
     place,
     rail,
@@ -176,6 +194,7 @@ def settings_from_options(
     lag_tol,
     lag_tol_deg=None,
     predict=None,
+    ends=None,
 ):
     """CheckSettings from the shared check/scan options (SI inside).
 
@@ -183,7 +202,7 @@ def settings_from_options(
     --lag, --rail-at with --rail follow (the carriage then moves; --rail-at fixes it).
     """
     from reachgate.checking.lag import Prediction
-    from reachgate.checking.pipeline import CheckSettings, Placement
+    from reachgate.checking.pipeline import CheckSettings, Ends, Placement
     from reachgate.checking.rail import RailPolicy
 
     _refuse_ignored_rail_at(rail, rail_at)
@@ -206,6 +225,7 @@ def settings_from_options(
         lag_tol_m=DEFAULT_LAG_TOL_M if lag_tol is None else lag_tol / 1000.0,
         lag_tol_rad=DEFAULT_LAG_TOL_RAD if lag_tol_deg is None else math.radians(lag_tol_deg),
         predict=Prediction.NONE if predict is None else Prediction(predict.value),
+        ends=Ends.REST if ends is None else Ends(ends.value),
     )
 
 
@@ -239,6 +259,7 @@ def check_command(
     lag_tol: LagTolOption = None,
     lag_tol_deg: LagTolDegOption = None,
     predict: PredictOption = None,
+    ends: EndsOption = EndsMode.rest,
     fmt: Annotated[
         OutputFormat, typer.Option("--format", help="Report format.")
     ] = OutputFormat.table,
@@ -264,7 +285,7 @@ def check_command(
     )
     settings = _guarded(
         lambda: settings_from_options(
-            place, rail, rail_at, rail_bandwidth, lag, lag_tol, lag_tol_deg, predict
+            place, rail, rail_at, rail_bandwidth, lag, lag_tol, lag_tol_deg, predict, ends
         )
     )
     rig = _guarded(lambda: load_rig(robot))
@@ -553,6 +574,7 @@ def scan_command(
     lag_tol: LagTolOption = None,
     lag_tol_deg: LagTolDegOption = None,
     predict: PredictOption = None,
+    ends: EndsOption = EndsMode.rest,
     store: Annotated[
         Path | None,
         typer.Option(
@@ -616,7 +638,7 @@ def scan_command(
             _fail_bad_input("scan needs ROBOT and at least one case (file, folder or glob)")
         settings = _guarded(
             lambda: settings_from_options(
-                place, rail, rail_at, rail_bandwidth, lag, lag_tol, lag_tol_deg, predict
+                place, rail, rail_at, rail_bandwidth, lag, lag_tol, lag_tol_deg, predict, ends
             )
         )
         if cluster:

@@ -13,3 +13,12 @@ class ReachgateError(Exception):
 class ClusterLostError(ReachgateError):
     """A scan's Dask scheduler went away, or kept no worker for too long. The cases finished
     before are in the store; the CLI exits with its own code (3), not 2."""
+
+
+class UndefinedValueError(ReachgateError):
+    """A NaN or infinity reached a check: the case cannot be judged, so it must not pass.
+
+    Raised where the value appears (which check, axis or stage, and when); the CLI treats it
+    like any ReachgateError (one line on stderr, exit code 2), a scan stores the case as an
+    error.
+    """

@@ -13,6 +13,8 @@ from enum import Enum
 
 import numpy as np
 
+from reachgate.errors import UndefinedValueError
+
 
 class Check(Enum):
     POSITION = "position"
@@ -117,8 +119,20 @@ class IntervalStream:
         self._open: dict[Severity, _Run | None] = {Severity.VIOLATION: None, Severity.NEAR: None}
 
     def feed(self, t_s, excess, worst_value, limit_value) -> None:
-        """Add one chunk: t_s, excess, worst_value (n,) and limit_value scalar or (n,)."""
+        """Add one chunk: t_s, excess, worst_value (n,) and limit_value scalar or (n,).
+
+        -inf in excess means "not judged here" (an unreachable sample, say); NaN or +inf is
+        an undefined value and raises UndefinedValueError naming the check, axis and time: a
+        comparison with NaN is False, so it would otherwise read as a pass.
+        """
         excess = np.asarray(excess, dtype=float)
+        undefined = np.isnan(excess) | (excess == np.inf)
+        if undefined.any():
+            first = int(np.argmax(undefined))
+            raise UndefinedValueError(
+                f"{self.check.value} of {self.axis} is undefined ({excess[first]}) at "
+                f"t = {float(t_s[first]):.6g} s: nothing was judged, the case cannot pass"
+            )
         if excess.size and float(excess.max()) <= -max(self.band, 0.0):
             # no sample over or near the limit: only runs left open by the last chunk end
             for severity, pending in self._open.items():

@@ -13,9 +13,14 @@ from enum import Enum
 
 import numpy as np
 
-from reachgate.checking.derivatives import WINDOW_SAMPLES, time_derivatives
+from reachgate.checking.derivatives import (
+    WINDOW_SAMPLES,
+    end_node_steps,
+    fit_stride,
+    junction_rates,
+    time_derivatives,
+)
 from reachgate.checking.intervals import (
-    RATE_CHECKS,
     Check,
     IntervalStream,
     Severity,
@@ -24,8 +29,15 @@ from reachgate.checking.intervals import (
     sort_rows,
 )
 from reachgate.checking.lag import DEFAULT_LAG_TOL_RAD, Prediction, lag_errors
+from reachgate.checking.notes import input_notes, unmeasured_rates
 from reachgate.checking.rail import DEFAULT_BANDWIDTH_HZ, RailPolicy, rail_positions
-from reachgate.errors import ReachgateError
+from reachgate.checking.slowdown import (
+    SLOWDOWN_MAX,
+    smallest_stretch,
+    stretch_guess,
+    stretch_rows,
+)
+from reachgate.errors import ReachgateError, UndefinedValueError
 from reachgate.kinematics.chain import arm_manipulability
 from reachgate.kinematics.path_ik import PathSolution, solve_trajectory
 from reachgate.kinematics.singularity import conditioning, singularity_kinds
@@ -38,19 +50,30 @@ from reachgate.version import __version__
 DEFAULT_LAG_TOL_M = 0.001
 #: A singularity measure below this multiple of its floor gives a `near` row.
 SINGULARITY_NEAR_FACTOR = 2.0
-#: The slow-down factor is raised by this relative margin, so that the stretched case's worst
-#: rate lands below its limit instead of on it (floating point).
+#: The scaling law's factor is raised by this relative margin before it is checked, so that
+#: the stretched case's worst value lands below its limit instead of on it (floating point).
 SLOWDOWN_MARGIN = 1e-6
-#: With --rail follow a stretch also changes what the rail filter passes, so the factor is
-#: checked on the stretched case and raised until its rate rows clear, at most this often.
-SLOWDOWN_VERIFY_ROUNDS = 8
 #: Samples per block of the rate checks (bounds the (block, n_axes) derivative arrays).
 RATE_BLOCK_SAMPLES = 65_536
-#: Extra samples on each side of a block, so every local fit sees the same neighbours as in
-#: one pass over the whole path.
+#: Extra fit nodes on each side of a block (times the fit's stride in samples), so every local
+#: fit sees the same neighbours as in one pass over the whole path.
 RATE_HALO_SAMPLES = WINDOW_SAMPLES
-#: Samples on each side of an unreachable one whose derivatives are not trusted.
+#: Fit nodes on each side of an unreachable sample whose derivatives are not trusted (times
+#: the fit's stride in samples).
 UNTRUSTED_NEIGHBOURS = 4
+
+
+class Ends(Enum):
+    """What the checks assume before the first sample and after the last (DESIGN §11).
+
+    rest: the rig starts and ends at rest, held still at the first and last pose (the rail in
+    follow mode keeps following the held pose through its filter), so a path that starts or
+    stops moving abruptly gets accel and jerk rows there. free: the path is a window cut out
+    of a longer run; nothing is assumed outside it.
+    """
+
+    REST = "rest"
+    FREE = "free"
 
 
 class Verdict(Enum):
@@ -95,6 +118,7 @@ class CheckSettings:
     lag_tol_m: float = DEFAULT_LAG_TOL_M
     lag_tol_rad: float = DEFAULT_LAG_TOL_RAD
     predict: Prediction = Prediction.NONE
+    ends: Ends = Ends.REST
 
     def __post_init__(self) -> None:
         if self.lag_s is not None and not (math.isfinite(self.lag_s) and self.lag_s > 0):
@@ -117,6 +141,7 @@ class CheckSettings:
             "lag_tol_m": self.lag_tol_m,
             "lag_tol_rad": self.lag_tol_rad,
             "predict": self.predict.value,
+            "ends": self.ends.value,
         }
 
 
@@ -158,6 +183,7 @@ class Report:
             "margins": self.margins,
             "slowdown": self.slowdown,
             "settings": self.settings.as_dict(),
+            "notes": list(self.notes),
         }
 
     def to_json(self, indent: int | None = 2) -> str:
@@ -190,15 +216,29 @@ def _first_non_finite(node, path: str = "report") -> str | None:
     return None
 
 
-def _untrusted(mask: np.ndarray) -> np.ndarray:
-    """Grow a (N,) mask by UNTRUSTED_NEIGHBOURS samples each side."""
+def _untrusted(mask: np.ndarray, stride: int = 1) -> np.ndarray:
+    """Grow a (N,) mask by UNTRUSTED_NEIGHBOURS fit nodes (`stride` samples each) each side."""
     if not mask.any():
         return mask
-    kernel = np.ones(2 * UNTRUSTED_NEIGHBOURS + 1)
+    reach = UNTRUSTED_NEIGHBOURS * stride
+    kernel = np.ones(2 * reach + 1)
     # mode="full" then the centred slice: mode="same" returns max(N, kernel) samples, which
     # broke paths shorter than the kernel; for longer paths the result is the same.
     grown = np.convolve(mask.astype(float), kernel, mode="full")
-    return grown[UNTRUSTED_NEIGHBOURS : UNTRUSTED_NEIGHBOURS + mask.size] > 0
+    return grown[reach : reach + mask.size] > 0
+
+
+def _require_finite(values: np.ndarray, t_s: np.ndarray, what: str) -> None:
+    """Raise UndefinedValueError if values (N,) or (N, k) hold a NaN or an infinity."""
+    bad = ~np.isfinite(values)
+    if bad.ndim > 1:
+        bad = bad.any(axis=tuple(range(1, bad.ndim)))
+    if bad.any():
+        first = int(np.argmax(bad))
+        raise UndefinedValueError(
+            f"{what} undefined (NaN or infinite) at t = {float(t_s[first]):.6g} s (sample "
+            f"{first + 1}): nothing was judged, the case cannot pass"
+        )
 
 
 def check(
@@ -210,47 +250,50 @@ def check(
 ) -> Report:
     """Check whether the robot can follow every sample of the trajectory. -> Report.
 
-    verify_slowdown=False skips checking the slow-down factor on the stretched case (rail
-    follow): every row, margin and the verdict are the same, the factor is the scaling law's.
-    The placement search, which reads only margins and rows, checks cases this way.
+    Raises UndefinedValueError (a ReachgateError) when a NaN or an infinity reaches any
+    stage: rail positions, the solved axis values of a reachable sample, a derivative, a
+    singularity measure, a lag error. An undefined value never reads as a pass.
+
+    verify_slowdown=False skips measuring the slow-down factor on the stretched case: every
+    row, margin and the verdict are the same, the factor is the scaling law's guess. The
+    placement search, which reads only margins and rows, checks cases this way.
     """
     settings = settings or CheckSettings()
-    report = _check_once(robot, trajectory, settings)
-    if (
-        verify_slowdown
-        and settings.rail is RailPolicy.FOLLOW
-        and report.slowdown not in (None, 1.0)
-    ):
-        report = replace(report, slowdown=_verified_slowdown(robot, trajectory, settings, report))
+    # numpy's floating-point warnings stay quiet: every undefined value is caught by name
+    # (_require_finite, IntervalStream.feed) and stops the check instead
+    with np.errstate(all="ignore"):
+        try:
+            report = _check_once(robot, trajectory, settings)
+        except UndefinedValueError as error:
+            raise UndefinedValueError(f"{trajectory.name}: {error}") from None
+        if verify_slowdown and stretch_rows(report.violations):
+            report = _with_measured_slowdown(robot, trajectory, settings, report)
     return report
+
+
+def _with_measured_slowdown(robot, trajectory, settings, report: Report) -> Report:
+    """The report with its slow-down factor measured on the stretched case (checking/
+    slowdown.py: bracketing and bisection on the real check), or None and a note."""
+
+    def rows_after(factor: float) -> list[Violation]:
+        return list(_check_once(robot, stretched(trajectory, factor), settings).violations)
+
+    guess = stretch_guess(report.violations) * (1.0 + SLOWDOWN_MARGIN)
+    factor = smallest_stretch(rows_after, guess)
+    if factor is not None:
+        return replace(report, slowdown=factor)
+    kinds = sorted({r.check.value for r in stretch_rows(report.violations)})
+    note = (
+        f"no stretch up to {SLOWDOWN_MAX:g}x clears the {', '.join(kinds)} rows: "
+        "no slow-down factor"
+    )
+    return replace(report, slowdown=None, notes=(*report.notes, note))
 
 
 def stretched(trajectory: Trajectory, factor: float) -> Trajectory:
     """The same poses with every time step `factor` times longer (from the first sample)."""
     t0 = trajectory.t_s[0]
     return replace(trajectory, t_s=t0 + (trajectory.t_s - t0) * factor)
-
-
-def _rate_ratio(report: Report) -> float:
-    """The stretch that the report's worst speed, accel and jerk still ask for (<= 1: none)."""
-    needed = 0.0
-    for margins in report.margins.values():
-        for kind, power in ((Check.SPEED, 1.0), (Check.ACCEL, 2.0), (Check.JERK, 3.0)):
-            if margins.get(kind.value) is not None:
-                needed = max(needed, max(1.0 - margins[kind.value], 0.0) ** (1.0 / power))
-    return needed
-
-
-def _verified_slowdown(robot, trajectory, settings, report: Report) -> float | None:
-    """The slow-down factor checked on the stretched case (rail follow), or None if rounds
-    of raising it never cleared the rate rows."""
-    factor = report.slowdown
-    for _ in range(SLOWDOWN_VERIFY_ROUNDS):
-        ratio = _rate_ratio(_check_once(robot, stretched(trajectory, factor), settings))
-        if ratio <= 1.0:
-            return factor
-        factor *= ratio * (1.0 + SLOWDOWN_MARGIN)
-    return None
 
 
 def _check_once(robot: Robot, trajectory: Trajectory, settings: CheckSettings) -> Report:
@@ -265,12 +308,18 @@ def _check_once(robot: Robot, trajectory: Trajectory, settings: CheckSettings) -
         settings.rail_at_m,
         settings.rail_bandwidth_hz,
     )
+    if rail_m is not None:
+        _require_finite(rail_m, t, "rail position")
     solution = solve_trajectory(robot, trajectory, cell_T_scenario, rail_m)
     q = solution.q
+    _require_finite(solution.reach_excess_m, t, "distance out of reach")
     unreachable = solution.reach_excess_m > 0
-    trusted = ~_untrusted(unreachable)
+    _require_finite(q[~unreachable], t[~unreachable], "solved axis values")
+    stride = fit_stride(t)
+    trusted = ~_untrusted(unreachable, stride)
     thresholds = robot.thresholds
-    rows, margins, worst_ratio = _rate_rows(robot, t, q, trusted)
+    after_end = _motion_after_end(robot, trajectory, settings, stride, cell_T_scenario)
+    rows, margins = _rate_rows(robot, t, q, trusted, stride, after_end)
 
     any_unreachable = bool(unreachable.any())
     for i, axis in enumerate(robot.axes):
@@ -326,10 +375,15 @@ def _check_once(robot: Robot, trajectory: Trajectory, settings: CheckSettings) -
 
     rows = sort_rows(rows)
     failing = [r for r in rows if r.severity is Severity.VIOLATION]
-    slowdown = _slowdown(failing, worst_ratio)
+    slowdown = _slowdown(failing)
     notes = ()
     if trajectory.ignored_columns:
         notes = (f"columns kept out of the check: {', '.join(trajectory.ignored_columns)}",)
+    notes += input_notes(robot, trajectory)
+    for kind in unmeasured_rates(trajectory.n_samples):  # null, never a 1 that reads as unused
+        for values in margins.values():
+            if kind in values:
+                values[kind] = None
     return Report(
         tool_version=__version__,
         robot=robot.name,
@@ -377,12 +431,68 @@ def _lag_rows(trajectory: Trajectory, settings: CheckSettings, near_fraction: fl
     return rows
 
 
-def _rate_rows(robot: Robot, t: np.ndarray, q: np.ndarray, trusted: np.ndarray):
-    """Speed, accel and jerk rows, rate margins and worst limit ratios for every axis.
+def _motion_after_end(robot, trajectory, settings, stride, cell_T_scenario):
+    """Axis velocities and accelerations just after the last sample, each (n_axes,), or None
+    when the ends are free.
+
+    Held still (zero) unless the rail follows: then the pose is held and the rail keeps
+    following it through its filter, the arm making up the difference. That motion is solved
+    on a short held tail (the fit's nodes at the last step) and differentiated from its start.
+    """
+    if settings.ends is Ends.FREE:
+        return None
+    n_axes = len(robot.axes)
+    zero = np.zeros(n_axes)
+    t = trajectory.t_s
+    if settings.rail is not RailPolicy.FOLLOW or robot.rail is None or t.size < 2:
+        return zero, zero
+    step = float(t[-1] - t[-2])
+    tail_n = stride * (WINDOW_SAMPLES - 1) + 1
+    held = np.arange(1, tail_n)
+    t_all = np.concatenate([t, t[-1] + step * held])
+    p_all = np.concatenate(
+        [trajectory.scenario_p_m, np.repeat(trajectory.scenario_p_m[-1:], held.size, 0)]
+    )
+    rail_all = rail_positions(
+        robot,
+        t_all,
+        p_all,
+        cell_T_scenario,
+        settings.rail,
+        settings.rail_at_m,
+        settings.rail_bandwidth_hz,
+    )
+    tail = replace(
+        trajectory,
+        t_s=t_all[t.size - 1 :],
+        scenario_p_m=p_all[t.size - 1 :],
+        scenario_q_wxyz=np.repeat(trajectory.scenario_q_wxyz[-1:], tail_n, 0),
+    )
+    solved = solve_trajectory(robot, tail, cell_T_scenario, rail_all[t.size - 1 :])
+    if (solved.reach_excess_m > 0).any():
+        return zero, zero  # the held pose is out of reach: its rows say so
+    rates = time_derivatives(tail.t_s, solved.q, stride=stride)
+    return rates.velocity[0], rates.acceleration[0]
+
+
+def _rate_rows(
+    robot: Robot,
+    t: np.ndarray,
+    q: np.ndarray,
+    trusted: np.ndarray,
+    stride: int,
+    after_end: tuple[np.ndarray, np.ndarray] | None = None,
+):
+    """Speed, accel and jerk rows and rate margins for every axis.
 
     q: (N, n_axes). Works block by block (derivatives with a halo of samples on each side, so
     each block's values equal one pass over the whole path) to keep memory bounded on long
-    cases. Returns (rows, {axis: {"speed": m, "accel": m, "jerk": m}}, {Check: worst ratio}).
+    cases. stride: samples between the derivative fit's nodes (fit_stride of the whole path).
+    after_end: (velocity, acceleration) of every axis just after the last sample (the arm
+    held still: zeros), or None for free ends; at rest ends the first and last samples also
+    carry the accel and jerk of joining the path to that motion (junction_rates; before the
+    first sample the arm is held still).
+    Returns (rows, {axis: {"speed": m, "accel": m, "jerk": m}}).
     """
     n = t.size
     rate_margin = robot.thresholds.rate_margin_fraction
@@ -404,9 +514,12 @@ def _rate_rows(robot: Robot, t: np.ndarray, q: np.ndarray, trusted: np.ndarray):
                 peaks[axis.name, kind] = 0.0
     for first in range(0, n, RATE_BLOCK_SAMPLES):
         last = min(first + RATE_BLOCK_SAMPLES, n)
-        lo, hi = max(first - RATE_HALO_SAMPLES, 0), min(last + RATE_HALO_SAMPLES, n)
-        rates = time_derivatives(t[lo:hi], q[lo:hi])
+        halo = RATE_HALO_SAMPLES * stride
+        lo, hi = max(first - halo, 0), min(last + halo, n)
+        rates = time_derivatives(t[lo:hi], q[lo:hi], stride=stride)
         inner = slice(first - lo, last - lo)
+        if after_end is not None and (first == 0 or last == n):
+            _join_ends(t, rates, first == 0, last == n, hi - lo, stride, after_end)
         ok = trusted[first:last]
         every_sample_trusted = bool(ok.all())
         by_kind = {
@@ -426,14 +539,32 @@ def _rate_rows(robot: Robot, t: np.ndarray, q: np.ndarray, trusted: np.ndarray):
                 peaks[axis.name, kind] = max(peaks[axis.name, kind], float(np.max(magnitude)))
     rows: list[Violation] = []
     margins: dict[str, dict[str, float | None]] = {axis.name: {} for axis in robot.axes}
-    worst_ratio = {Check.SPEED: 0.0, Check.ACCEL: 0.0, Check.JERK: 0.0}
     measured = bool(trusted.any())  # else every rate was masked: no margin, not 1.0
     for (name, kind), (stream, limit) in streams.items():
         rows += stream.finish()
-        ratio = peaks[name, kind] / limit
-        margins[name][kind.value] = 1.0 - ratio if measured else None
-        worst_ratio[kind] = max(worst_ratio[kind], ratio)
-    return rows, margins, worst_ratio
+        margins[name][kind.value] = 1.0 - peaks[name, kind] / limit if measured else None
+    return rows, margins
+
+
+def _join_ends(t, rates, at_start, at_end, block_n, stride, after_end) -> None:
+    """Put junction_rates into a block's rates (in place) at the path's first / last sample.
+
+    rates: the block's Derivatives, (block_n, n_axes) each, starting at sample 0 if at_start
+    and ending at the last sample if at_end.
+    """
+    h_start, h_end = end_node_steps(t, stride)
+    zero = np.zeros(rates.velocity.shape[1])
+    joins = []
+    if at_start:
+        joins.append((0, zero, zero, h_start))
+    if at_end:
+        joins.append((block_n - 1, *after_end, h_end))
+    for i, v_out, a_out, step in joins:
+        accel, jerk = junction_rates(
+            rates.velocity[i], rates.acceleration[i], rates.jerk[i], v_out, a_out, step
+        )
+        rates.acceleration[i] = accel
+        rates.jerk[i] = jerk
 
 
 def _singularity_rows(
@@ -483,19 +614,12 @@ def _singularity_rows(
     return rows
 
 
-def _slowdown(failing: list[Violation], worst_ratio: dict[Check, float]) -> float | None:
-    """Smallest uniform time stretch k >= 1 that clears every rate violation, or None.
-
-    Stretching time by k divides speeds by k, accelerations by k², jerks by k³. None when
-    violations remain that no stretch clears and no rate violation is there to clear.
-    """
+def _slowdown(failing: list[Violation]) -> float | None:
+    """The slow-down factor before it is measured: 1 when nothing fails, None when no
+    violation row is one a stretch clears (checking/slowdown.py), else the scaling law's
+    guess (check() replaces it by the factor measured on the stretched case)."""
     if not failing:
         return 1.0
-    if not any(r.check in RATE_CHECKS for r in failing):
+    if not stretch_rows(failing):
         return None
-    needed = max(
-        worst_ratio[Check.SPEED],
-        math.sqrt(worst_ratio[Check.ACCEL]),
-        math.cbrt(worst_ratio[Check.JERK]),
-    )
-    return max(1.0, needed * (1.0 + SLOWDOWN_MARGIN))
+    return stretch_guess(failing) * (1.0 + SLOWDOWN_MARGIN)

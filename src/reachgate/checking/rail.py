@@ -39,8 +39,12 @@ def first_order_lowpass(t_s: np.ndarray, u: np.ndarray, tau_s: float) -> np.ndar
     between samples (first-order hold) keeps the output's derivatives free of the steps a
     held input would put into them. The recurrence y_k = a_k y_(k-1) + c_k, with
     a_k = exp(-Δt_k/τ) and c_k = u_k - a_k u_(k-1) - (u_k - u_(k-1)) (1 - a_k) τ/Δt_k, is
-    evaluated in closed form per block, y_k = e^(-t_k/τ) (y_start + Σ c_j e^(t_j/τ)) with times
-    from the block start, so there is no per-sample Python loop.
+    evaluated in closed form per block of samples s..e, with times from the block's first
+    sample s: y_k = e^(-(t_k - t_s)/τ) (y_s + Σ_(s<j<=k) c_j e^((t_j - t_s)/τ)), so there is
+    no per-sample Python loop. The block's first sample takes one plain step of the
+    recurrence (a_s may underflow to 0, which is exact enough), so a step of any length, even
+    thousands of time constants, never reaches exp's overflow: inside a block the exponents
+    stay below _BLOCK_TIME_CONSTANTS.
     """
     t_s = np.asarray(t_s, dtype=float)
     u = np.asarray(u, dtype=float)
@@ -53,11 +57,14 @@ def first_order_lowpass(t_s: np.ndarray, u: np.ndarray, tau_s: float) -> np.ndar
     start = 1
     block_s = _BLOCK_TIME_CONSTANTS * tau_s
     while start < u.size:
-        stop = int(np.searchsorted(t_s, t_s[start - 1] + block_s, side="right"))
+        # the block's first sample: one step of the recurrence, whatever its length
+        y[start] = (1.0 - gain[start - 1]) * y[start - 1] + drive[start - 1]
+        stop = int(np.searchsorted(t_s, t_s[start] + block_s, side="right"))
         stop = max(stop, start + 1)
-        rel = (t_s[start:stop] - t_s[start - 1]) / tau_s
-        grow = np.exp(rel)
-        y[start:stop] = (y[start - 1] + np.cumsum(drive[start - 1 : stop - 1] * grow)) / grow
+        if stop > start + 1:
+            rel = (t_s[start + 1 : stop] - t_s[start]) / tau_s  # in [0, block] time constants
+            grow = np.exp(rel)
+            y[start + 1 : stop] = (y[start] + np.cumsum(drive[start : stop - 1] * grow)) / grow
         start = stop
     return y
 

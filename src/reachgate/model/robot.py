@@ -139,6 +139,9 @@ class Robot:
     source: str = "<arrays>"
     parts: tuple[Part, ...] = ()
     geometry_missing: tuple[str, ...] = ()
+    #: False when the file gave no [tool]: the TCP is then the flange itself, which a check
+    #: of a real mock-up rarely means (the report says so).
+    has_tool: bool = True
 
     @cached_property
     def axes(self) -> tuple[Axis, ...]:
@@ -643,6 +646,7 @@ def robot_from_dict(data: dict[str, Any], source: str = "<dict>") -> Robot:
         source=source,
         parts=parts,
         geometry_missing=missing,
+        has_tool=tool is not None,
     )
 
 

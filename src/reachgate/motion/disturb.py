@@ -23,10 +23,11 @@ Discretisation: filters, response and washout form one linear stochastic system 
 channel, discretised exactly for every time step of the nominal path (Van Loan, in
 exact_steps), so uneven sampling is honoured without a resampling grid; the recursion runs
 as a parallel prefix scan. Every state starts from its stationary law. A case is the nominal
-plus fade_in(t) times the response (ours), so it starts on the nominal pose, speed,
-acceleration and jerk: the rig starts a case from the nominal's state, and the rail's follow
-filter starts at rest. (Zero initial response states instead would switch the gust on at
-t = 0, a jerk of ωn² times the gust velocity.)
+plus fade_in_out(t) times the response (ours), so it starts and ends on the nominal pose,
+speed, acceleration and jerk: the rig starts a case from the nominal's state and brings it to
+the nominal's end (at rest, for a nominal that ends at rest, as `check --ends rest` asks),
+and the rail's follow filter starts at rest. (Zero initial response states instead would
+switch the gust on at t = 0, a jerk of ωn² times the gust velocity.)
 """
 
 from __future__ import annotations
@@ -65,9 +66,10 @@ DEFAULT_RESPONSE_HZ = 0.5
 # 0.2 s, 18 of 20 light cases of the demo approach pass on the demo arm; with 0.5 s, 1 of 20
 # (joint range j2, branch changes and wrist-singularity j4/j6 motion).
 DEFAULT_WASHOUT_S = 0.2
-# The disturbance fades in over this time from the path's start (fade_in), so a case has no
-# step in speed at t = 0. 2 s spans a response period and ten washout times; the fade's own
-# derivative terms stay well below the gusts' (ours).
+# The disturbance fades in over this time from the path's start and out over the same time
+# before its end (fade_in_out), so a case has no step in speed at either end. 2 s spans a
+# response period and ten washout times; the fade's own derivative terms stay well below the
+# gusts' (ours).
 FADE_IN_S = 2.0
 
 # Steps equal to within this are discretised once: a 1 ns change of a step moves nothing
@@ -265,6 +267,14 @@ def fade_in(t_s: np.ndarray, fade_s: float = FADE_IN_S) -> np.ndarray:
     return u**4 * (35.0 + u * (-84.0 + u * (70.0 - 20.0 * u)))
 
 
+def fade_in_out(t_s: np.ndarray, fade_s: float = FADE_IN_S) -> np.ndarray:
+    """Weight of the disturbance at times t_s ``(N,)`` s: fade_in from the first sample times
+    fade_in to the last, so 0 at both ends with its first three derivatives (a case shorter
+    than two fades never reaches the full disturbance)."""
+    t = np.asarray(t_s, dtype=float)
+    return fade_in(t - t[0], fade_s) * fade_in(t[-1] - t, fade_s)
+
+
 def _is_whole(value) -> bool:
     return isinstance(value, numbers.Integral) and not isinstance(value, bool)
 
@@ -333,7 +343,7 @@ def iter_disturbance_cases(
         "scale_u_m": s.scale_u_m, "scale_v_m": s.scale_v_m, "scale_w_m": s.scale_w_m,
         "airspeed_m_s": s.airspeed_m_s, "altitude_m": s.altitude_m,
         "washout_s": float(washout_s), "wingspan_m": s.wingspan_m,
-        "response_hz": float(response_hz), "fade_in_s": FADE_IN_S,
+        "response_hz": float(response_hz), "fade_in_s": FADE_IN_S, "fade_out_s": FADE_IN_S,
         "gust_axes": "u v w along scenario x y z; p q r about scenario x y z",
     }  # fmt: skip
     return _cases(nominal, count, seed, prepared, common)
@@ -342,7 +352,7 @@ def iter_disturbance_cases(
 def _cases(nominal, count, seed, prepared, common) -> Iterator[DisturbanceCase]:
     """The cases themselves, one at a time (the options were checked by the caller)."""
     q_nominal = nominal.scenario_q_wxyz
-    fade = fade_in(nominal.t_s - nominal.t_s[0])[:, None]
+    fade = fade_in_out(nominal.t_s)[:, None]
     for index in range(1, count + 1):
         state = np.random.SeedSequence(seed, spawn_key=(index,)).generate_state(2, np.uint32)
         case_seed = int(state[0]) << 32 | int(state[1])

@@ -15,6 +15,7 @@ import numpy as np
 
 from reachgate.checking.intervals import ROW_KEYS, Check, Severity
 from reachgate.checking.pipeline import Report
+from reachgate.checking.slowdown import STRETCH_CHECKS
 from reachgate.render.files import atomic_output
 from reachgate.render.terminal import plain_table, table_width, tidy, wrap_items, wrap_text
 
@@ -70,24 +71,59 @@ def display(value: float, unit: str) -> tuple[str, str]:
     return f"{value * factor:.4g}" if unit == "1" else f"{value * factor:.2f}", shown_unit
 
 
+def plural(count: int, word: str) -> str:
+    """'1 violation row', '3 violation rows'."""
+    return f"{count} {word}" if count == 1 else f"{count} {word}s"
+
+
+def _listed(names: list[str]) -> str:
+    """'speed', 'speed and jerk', 'speed, accel and jerk'."""
+    return names[0] if len(names) == 1 else f"{', '.join(names[:-1])} and {names[-1]}"
+
+
+def _fixes_beyond_a_stretch(report: Report) -> str:
+    """What can help rows no stretch clears (position, reach, branch, singularity)."""
+    rail = (
+        "let the rail take more (--rail follow, or another --rail-at), "
+        if ("rail" in report.axis_names)
+        else ""
+    )
+    return f"move the placement (--place), {rail}or change the path"
+
+
 def advice(report: Report) -> str:
-    """One line of slow-down advice."""
+    """One line of advice naming only fixes that can work for the violation rows present.
+
+    A slower case clears speed, accel, jerk and lag rows (slowdown); a lag row also clears
+    with a shorter loop delay or a prediction of the pose over the delay; no stretch clears
+    the other rows, which need a different placement, more motion on the rail or another path.
+    """
     failing = [v for v in report.violations if v.severity is Severity.VIOLATION]
     if not failing:
         return "No change needed."
-    if report.slowdown is None:
-        kinds = sorted({v.check.value for v in failing})
-        return (
-            "Slowing down does not clear these violations "
-            f"({', '.join(kinds)}): move the placement, let the rail take more, or change the path."
-        )
-    others = sorted({v.check.value for v in failing} - {"speed", "accel", "jerk"})
-    text = (
-        f"Stretch time by at least {report.slowdown:.3f}x to clear the speed, accel and jerk rows"
-    )
+    stretchable = sorted({v.check.value for v in failing if v.check in STRETCH_CHECKS})
+    others = sorted({v.check.value for v in failing if v.check not in STRETCH_CHECKS})
+    rows = "row" if sum(v.check.value in stretchable for v in failing) == 1 else "rows"
+    parts = []
+    if stretchable:
+        if report.slowdown is not None:
+            parts.append(
+                f"a slower case: stretch time by at least {report.slowdown:.3f}x to clear the "
+                f"{_listed(stretchable)} {rows}"
+            )
+        else:
+            parts.append(f"no stretch was found that clears the {_listed(stretchable)} {rows}")
+        if "lag" in stretchable:
+            parts.append(
+                "the lag rows also clear with a shorter loop delay or with a prediction of "
+                "the pose over the delay"
+            )
     if others:
-        text += f"; it does not clear the {', '.join(others)} rows"
-    return text + "."
+        other_rows = "row" if sum(v.check.value in others for v in failing) == 1 else "rows"
+        lead = "a stretch does not clear the" if stretchable else "slowing down does not clear the"
+        parts.append(f"{lead} {_listed(others)} {other_rows}: {_fixes_beyond_a_stretch(report)}")
+    text = "; ".join(parts)
+    return text[0].upper() + text[1:] + "."
 
 
 #: Interval rows the table shows before it summarises the rest (JSON and CSV keep all).
@@ -197,7 +233,9 @@ def render_table(report: Report, width: int | None = None, max_rows: int = TABLE
     for note in report.notes:
         say(note, "note: ")
     verdict = "PASS" if report.passed else "FAIL"
-    console.print(f"verdict: {verdict} ({n_viol} violation rows, {n_near} near rows)")
+    console.print(
+        f"verdict: {verdict} ({plural(n_viol, 'violation row')}, {plural(n_near, 'near row')})"
+    )
     print_findings(console, report, max_rows, branch_explanations(report))
     return tidy(buffer.getvalue())
 

@@ -9,7 +9,8 @@ import math
 
 from reachgate.batch.scan import ScanProgress
 from reachgate.batch.store import CaseResult, CaseVerdict, ScanSummary
-from reachgate.checking.intervals import RATE_CHECKS, Severity
+from reachgate.checking.intervals import Severity
+from reachgate.checking.slowdown import STRETCH_CHECKS
 from reachgate.render.check_report import SAFETY_CAUTIONS, plain_console
 from reachgate.render.terminal import plain_table, table_width, tidy, wrap_items, wrap_text
 from reachgate.version import __version__
@@ -39,7 +40,7 @@ def settings_text(settings: dict) -> str:
 def _stretch_leaves_rows(c: CaseResult) -> bool:
     """True when the case has violations a uniform time stretch does not clear."""
     return any(
-        v.severity is Severity.VIOLATION and v.check not in RATE_CHECKS for v in c.violations
+        v.severity is Severity.VIOLATION and v.check not in STRETCH_CHECKS for v in c.violations
     )
 
 
@@ -59,7 +60,7 @@ RANKED_TITLES = (
     "slow-down",
 )
 MARGIN_NOTE = "margins: fraction of a limit left (1 unused, 0 at it, < 0 beyond)"
-STAR_NOTE = "slow-down*: clears the speed, accel and jerk rows only; other violations remain"
+STAR_NOTE = "slow-down*: clears the speed, accel, jerk and lag rows only; other violations remain"
 
 
 def ranked_rows(cases: tuple[CaseResult, ...]) -> tuple[list[tuple[str, ...]], bool]:
