@@ -312,8 +312,10 @@ def _check_once(robot: Robot, trajectory: Trajectory, settings: CheckSettings) -
         _require_finite(rail_m, t, "rail position")
     solution = solve_trajectory(robot, trajectory, cell_T_scenario, rail_m)
     q = solution.q
-    _require_finite(solution.reach_excess_m, t, "distance out of reach")
-    unreachable = solution.reach_excess_m > 0
+    # a target too far for float arithmetic is out of reach by the largest float, not undefined
+    reach_excess_m = np.minimum(solution.reach_excess_m, np.finfo(float).max)
+    _require_finite(reach_excess_m, t, "distance out of reach")
+    unreachable = reach_excess_m > 0
     _require_finite(q[~unreachable], t[~unreachable], "solved axis values")
     stride = fit_stride(t)
     trusted = ~_untrusted(unreachable, stride)
@@ -350,11 +352,11 @@ def _check_once(robot: Robot, trajectory: Trajectory, settings: CheckSettings) -
     rows += _singularity_rows(robot, t, solution, trusted)
     rows += intervals(
         t,
-        np.where(unreachable, solution.reach_excess_m, -1.0),
+        np.where(unreachable, reach_excess_m, -1.0),
         0.0,
         check=Check.REACH,
         axis="tcp",
-        worst_value=solution.reach_excess_m,
+        worst_value=reach_excess_m,
         limit_value=0.0,
         unit="m",
     )
