@@ -23,7 +23,7 @@ from typer.testing import CliRunner
 from browser import chromium_path, visit_page
 from reachgate.batch.scan import scan
 from reachgate.batch.store import Store
-from reachgate.checking.pipeline import CheckSettings
+from reachgate.checking.pipeline import CheckSettings, Ends
 from reachgate.checking.rail import RailPolicy
 from reachgate.cli import app
 from reachgate.model.trajectory import Trajectory, load_trajectory, write_trajectory
@@ -66,7 +66,8 @@ def night(tmp_path_factory):
     broken = [*lines[header : header + 10], "1,2,oops"]  # no comment lines: no parameters
     (folder / "cases" / "broken.csv").write_text("\n".join(broken) + "\n")
     store = folder / "night.sqlite"
-    settings = CheckSettings(rail=RailPolicy.FOLLOW)
+    # the first 6 s of the approach: a window cut out of it (--ends free, DESIGN §11)
+    settings = CheckSettings(rail=RailPolicy.FOLLOW, ends=Ends.FREE)
     summary = scan(DEMO_ROBOT, [folder / "cases"], settings, store_path=store, workers=2)
     page = folder / "night.html"
     args = f"scan --store {store} --report --format html --out {page} --pictures {PICTURES}"
