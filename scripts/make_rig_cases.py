@@ -5,6 +5,9 @@ The demo landing rig (rigs/demo_landing_rig.toml): the rail arm carries a drone 
 surges, rolls and pitches gently as a vehicle roof would; the drone flies a landing approach
 onto it and rides on it for the last seconds. Poses are given in the rig frame (the default
 placement). Sampling 100 Hz with ±10 % jitter, as a real-time simulation's log would be.
+The rig starts and ends at rest (reachgate checks `--ends rest` by default): the motion is
+played on a clock that speeds up from standstill over RAMP_S and slows to standstill over the
+last RAMP_S (minimum-jerk rates), so the paths themselves are those of the steady motion.
 
 - landing_calm.csv: calm air; the mock-up meets the pad at touchdown (a declared contact).
 - landing_gusty.csv: a side gust late in the approach pushes the mock-up towards the pad
@@ -27,6 +30,8 @@ from reachgate.model.transforms import matrix_to_quat, rpy_to_matrix
 RATE_HZ = 100.0
 APPROACH_S = 36.0
 ON_PAD_S = 4.0
+#: Run-up and run-down of the motion's clock at the two ends, s.
+RAMP_S = 2.0
 OUT = Path(__file__).resolve().parents[1] / "trajectories" / "rig"
 
 #: The pad arm's TCP at home in the rig frame, and its yaw there (rig x towards -pad y).
@@ -44,8 +49,16 @@ def minimum_jerk(s: np.ndarray) -> np.ndarray:
 
 def times(seed: int) -> np.ndarray:
     rng = np.random.default_rng(seed)
-    n = int((APPROACH_S + ON_PAD_S) * RATE_HZ)
+    n = int((APPROACH_S + ON_PAD_S + RAMP_S) * RATE_HZ)
     return np.cumsum(np.concatenate([[0.0], rng.uniform(0.9, 1.1, n) / RATE_HZ]))
+
+
+def motion_clock(t: np.ndarray) -> np.ndarray:
+    """The motion's own time at rig times t: its rate rises from 0 to 1 over RAMP_S and falls
+    back to 0 over the last RAMP_S, so every body starts and ends at rest."""
+    rate = minimum_jerk(np.clip(t / RAMP_S, 0.0, 1.0))
+    rate *= minimum_jerk(np.clip((t[-1] - t) / RAMP_S, 0.0, 1.0))
+    return np.concatenate([[0.0], np.cumsum(0.5 * (rate[1:] + rate[:-1]) * np.diff(t))])
 
 
 def pad_motion(t: np.ndarray):
@@ -102,8 +115,9 @@ def drone_motion(t, pad_p, pad_R, *, gust_m=0.0, dip_m=0.0, dip_pitch_deg=0.0):
 
 def write_case(name: str, description: str, seed: int, **drone) -> None:
     t = times(seed)
-    pad_p, pad_R = pad_motion(t)
-    drone_p, drone_R = drone_motion(t, pad_p, pad_R, **drone)
+    clock = motion_clock(t)
+    pad_p, pad_R = pad_motion(clock)
+    drone_p, drone_R = drone_motion(clock, pad_p, pad_R, **drone)
     scenario = Scenario.from_trajectories(
         {
             "drone": Trajectory.from_arrays(t, drone_p, matrix_to_quat(drone_R)),

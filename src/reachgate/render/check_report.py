@@ -15,6 +15,7 @@ import numpy as np
 
 from reachgate.checking.intervals import ROW_KEYS, Check, Severity
 from reachgate.checking.pipeline import Report
+from reachgate.checking.rail import RailPolicy
 from reachgate.checking.slowdown import STRETCH_CHECKS
 from reachgate.render.files import atomic_output
 from reachgate.render.terminal import plain_table, table_width, tidy, wrap_items, wrap_text
@@ -83,11 +84,12 @@ def _listed(names: list[str]) -> str:
 
 def _fixes_beyond_a_stretch(report: Report) -> str:
     """What can help rows no stretch clears (position, reach, branch, singularity)."""
-    rail = (
-        "let the rail take more (--rail follow, or another --rail-at), "
-        if ("rail" in report.axis_names)
-        else ""
-    )
+    if "rail" not in report.axis_names:
+        rail = ""
+    elif getattr(report.settings, "rail", None) is RailPolicy.FOLLOW:
+        rail = "let the rail take more (a higher --rail-bandwidth), "
+    else:
+        rail = "let the rail take more (--rail follow, or another --rail-at), "
     return f"move the placement (--place), {rail}or change the path"
 
 
