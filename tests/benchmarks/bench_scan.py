@@ -48,22 +48,26 @@ def approach_case(seed: int):
     t = np.cumsum(np.r_[0.0, rng.uniform(0.9, 1.1, n) / RATE_HZ])
     s = np.clip(t / t[-1], 0.0, 1.0)
     s = 10 * s**3 - 15 * s**4 + 6 * s**5
+    # the sway fades in and out over 2 s (minimum jerk): the case starts and ends at rest,
+    # as reachgate checks by default (--ends rest)
+    ramp = np.clip(np.minimum(t, t[-1] - t) / 2.0, 0.0, 1.0)
+    fade = 10 * ramp**3 - 15 * ramp**4 + 6 * ramp**5
     gust = rng.uniform(0.0, GUST_MAX)
     burst = gust * np.exp(-0.5 * ((t - rng.uniform(15, 45)) / 2.0) ** 2)
     p = np.column_stack(
         [
             2.9 + 4.6 * s,
-            0.05 * np.sin(2 * np.pi * 0.3 * t),
-            2.1 - 0.8 * s + 0.02 * np.sin(2 * np.pi * 0.7 * t) + 0.03 * burst,
+            fade * 0.05 * np.sin(2 * np.pi * 0.3 * t),
+            2.1 - 0.8 * s + fade * 0.02 * np.sin(2 * np.pi * 0.7 * t) + 0.03 * burst,
         ]
     )
     rpy = np.column_stack(
         [
-            np.radians(3.0) * np.sin(2 * np.pi * 0.5 * t)
+            fade * np.radians(3.0) * np.sin(2 * np.pi * 0.5 * t)
             + np.radians(8.0) * burst * np.sin(2 * np.pi * 2.5 * t),
-            np.radians(3.0) * np.sin(2 * np.pi * 0.4 * t + 1.0)
+            fade * np.radians(3.0) * np.sin(2 * np.pi * 0.4 * t + 1.0)
             + np.radians(5.0) * burst * np.sin(2 * np.pi * 1.8 * t),
-            np.radians(10.0) * np.sin(2 * np.pi * 0.05 * t),
+            fade * np.radians(10.0) * np.sin(2 * np.pi * 0.05 * t),
         ]
     )
     return Trajectory.from_arrays(t, p, rpy_rad=rpy, name=f"approach_{seed:04d}.csv")
