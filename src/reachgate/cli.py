@@ -131,6 +131,13 @@ PlaceOption = Annotated[
     str | None,
     typer.Option("--place", help="Scenario frame in the cell: 'x,y,z,roll,pitch,yaw' (m, deg)."),
 ]
+WorkersOption = Annotated[
+    int | None, typer.Option("--workers", help="Local worker processes (default: one per CPU).")
+]
+ClusterOption = Annotated[
+    str | None,
+    typer.Option("--cluster", help="Address of a running Dask scheduler to check the cases."),
+]
 RailOption = Annotated[RailMode, typer.Option("--rail", help="Rail policy: fixed or follow.")]
 RailAtOption = Annotated[
     float | None, typer.Option("--rail-at", help="Fixed rail position, m (default: home).")
@@ -582,13 +589,8 @@ def scan_command(
             help="Results store (SQLite); default reachgate_scan.sqlite in the cases' folder.",
         ),
     ] = None,
-    workers: Annotated[
-        int | None, typer.Option("--workers", help="Local worker processes (default: one per CPU).")
-    ] = None,
-    cluster: Annotated[
-        str | None,
-        typer.Option("--cluster", help="Address of a running Dask scheduler to check the cases."),
-    ] = None,
+    workers: WorkersOption = None,
+    cluster: ClusterOption = None,
     fresh: Annotated[
         bool, typer.Option("--fresh", help="Check every case again, even those already stored.")
     ] = False,
@@ -790,13 +792,8 @@ def place_command(
     lag_tol_deg: LagTolDegOption = None,
     predict: PredictOption = None,
     seed: Annotated[int, typer.Option("--seed", help="Seed of the search (repeatable).")] = 0,
-    workers: Annotated[
-        int | None, typer.Option("--workers", help="Local worker processes (default: one per CPU).")
-    ] = None,
-    cluster: Annotated[
-        str | None,
-        typer.Option("--cluster", help="Address of a running Dask scheduler to check the cases."),
-    ] = None,
+    workers: WorkersOption = None,
+    cluster: ClusterOption = None,
     map_png: Annotated[
         Path | None,
         typer.Option("--map", help="Write the score over two varied quantities (PNG)."),

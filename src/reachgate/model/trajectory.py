@@ -275,8 +275,8 @@ def _raise_unknown_unit_or_missing(
     raise _HeaderError(None, f"missing column {allowed.replace(', ', ' or ')}")
 
 
-def _map_columns(names: list[str]) -> _Columns:
-    """Find t, position and orientation columns in a header; raise _HeaderError on a fault."""
+def _named_columns(names: list[str]) -> dict[str, int]:
+    """Column index by name; raise _HeaderError for an empty or repeated name or no t_s."""
     seen: dict[str, int] = {}
     for i, name in enumerate(names):
         if not name:
@@ -288,6 +288,12 @@ def _map_columns(names: list[str]) -> _Columns:
         seen[name] = i
     if _TIME_COLUMN not in seen:
         _raise_unknown_unit_or_missing(names, "t", {"s": 1.0})
+    return seen
+
+
+def _map_columns(names: list[str]) -> _Columns:
+    """Find t, position and orientation columns in a header; raise _HeaderError on a fault."""
+    seen = _named_columns(names)
     position = _pick_units(names, _AXES, _LENGTH_UNITS, "position")
     if position is None:
         _raise_unknown_unit_or_missing(names, "x", _LENGTH_UNITS)
@@ -814,17 +820,7 @@ def _map_bodies(names: list[str]) -> dict[str, _Columns]:
     Every body is read with the single-body rules (same column choices, same messages, with
     the column named in full). Raises _HeaderError.
     """
-    seen: dict[str, int] = {}
-    for i, name in enumerate(names):
-        if not name:
-            raise _HeaderError(None, f"column {i + 1} of the header has no name")
-        if name in seen:
-            raise _HeaderError(
-                name, f"appears twice in the header (columns {seen[name] + 1} and {i + 1})"
-            )
-        seen[name] = i
-    if _TIME_COLUMN not in seen:
-        _raise_unknown_unit_or_missing(names, "t", {"s": 1.0})
+    seen = _named_columns(names)
     for name in names:
         if BODY_SEPARATOR not in name and _is_pose_column(name):
             raise _HeaderError(
