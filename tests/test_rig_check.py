@@ -230,3 +230,24 @@ def test_rig_plot_writes_the_clearance_picture_and_one_per_robot(tmp_path, short
     assert result.exit_code in (0, 1), result.output
     for written in (picture, tmp_path / "check-carrier.png", tmp_path / "check-table.png"):
         assert written.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+
+
+def test_lag_rows_alone_get_a_rig_slowdown_that_clears_them(rig, short_calm):
+    """DESIGN §6/§11: a stretch lowers the delay's tracking error, so a rig case whose only
+    stretchable rows are lag rows still gets a factor, and the stretched case has none left."""
+    settings = CheckSettings(lag_s=0.2, lag_tol_m=0.05)
+    report = check_rig(rig, short_calm, settings)
+    lag_rows = [r for r in report.violations
+                if r.check is Check.LAG and r.severity is Severity.VIOLATION]  # fmt: skip
+    assert lag_rows
+    assert report.slowdown is not None and report.slowdown > 1.0
+    again = check_rig(
+        rig,
+        Scenario.from_trajectories(
+            {name: stretched(b, report.slowdown) for name, b in short_calm.bodies.items()},
+            name="stretched",
+        ),
+        settings,
+    )
+    assert not [r for r in again.violations
+                if r.check is Check.LAG and r.severity is Severity.VIOLATION]  # fmt: skip

@@ -24,9 +24,10 @@ from reachgate.checking.clearance import (
     check_clearance,
     plan_pairs,
 )
-from reachgate.checking.intervals import RATE_CHECKS, Severity, Violation, sort_rows
+from reachgate.checking.intervals import Severity, Violation, sort_rows
 from reachgate.checking.pipeline import CheckSettings, Placement, Report, Verdict, check
 from reachgate.checking.rail import DEFAULT_BANDWIDTH_HZ, RailPolicy
+from reachgate.checking.slowdown import stretch_rows
 from reachgate.model.rig import Rig, RigRobot
 from reachgate.model.robot import Robot
 from reachgate.model.trajectory import PLAIN_BODY, Scenario, Trajectory
@@ -243,22 +244,20 @@ def check_rig(
 
 
 def _rig_slowdown(reports: dict[str, Report], failing: bool, rows: list[Violation]):
-    """The stretch that clears every robot's rate rows: the largest any robot needs. None when
-    no rate row fails, or when a robot's rate rows have no factor that clears them."""
+    """The stretch that clears every robot's speed, accel, jerk and lag rows: the largest any
+    robot's own measured factor. Robots are checked apart, so the largest clears them all.
+    None when no such row fails, or when a robot's rows have no factor that clears them."""
     if not failing:
         return 1.0
+    if not stretch_rows(rows):
+        return None
     needed = 1.0
     for report in reports.values():
-        has_rate = any(
-            r.check in RATE_CHECKS and r.severity is Severity.VIOLATION for r in report.violations
-        )
-        if not has_rate:
-            continue
-        if report.slowdown is None:
-            return None
-        needed = max(needed, report.slowdown)
-    has_rate = any(r.check in RATE_CHECKS and r.severity is Severity.VIOLATION for r in rows)
-    return needed if has_rate else None
+        if stretch_rows(report.violations):
+            if report.slowdown is None:
+                return None
+            needed = max(needed, report.slowdown)
+    return needed
 
 
 def check_any(
