@@ -14,6 +14,7 @@ from pathlib import Path
 
 from reachgate.errors import ReachgateError
 from reachgate.model.trajectory import trajectory_csv_chunks
+from reachgate.motion.case_parameters import read_case_parameters
 from reachgate.motion.disturb import DisturbanceCase
 from reachgate.render.files import same_file, write_chunks
 
@@ -24,22 +25,12 @@ _SETTINGS_NOT_COMPARED = frozenset({"case", "case_seed", "count", "made_by"})
 #: Digits of a case number in its file name, at least (more only past 9999 cases).
 CASE_NUMBER_DIGITS = 4
 
-#: Comment lines read from the top of a file when looking for perturb's record.
-_MAX_HEADER_LINES = 200
-
 
 def recorded_settings(path: Path) -> dict[str, str] | None:
     """The 'key = value' comment lines at the top of a case file perturb wrote, else None."""
-    found: dict[str, str] = {}
     try:
-        with path.open("r", encoding="utf-8", errors="replace") as handle:
-            for _, line in zip(range(_MAX_HEADER_LINES), handle, strict=False):
-                if not line.startswith("# "):
-                    break
-                key, sep, value = line[2:].rstrip("\n").partition(" = ")
-                if sep:
-                    found[key] = value
-    except OSError:
+        found = {key: str(value) for key, value in read_case_parameters(path).items()}
+    except ReachgateError:
         return None
     made_by = found.get("made_by", "")
     return found if made_by.startswith("reachgate ") and made_by.endswith(" perturb") else None
