@@ -95,6 +95,16 @@ def test_low_pass_fails_on_the_mock_up_too_close_to_the_floor(demo_reports):
     assert 0 < row["worst"] < row["limit"] == 0.05 and row["unit"] == "m"
 
 
+def test_a_failing_rig_case_prints_its_table_with_advice_for_the_rail_it_follows():
+    """The table of a failing rig case: its advice reads each robot's own rail (a follow rail
+    from the rig file: a higher bandwidth), and no traceback."""
+    result = run("check", RIG, CASES / "landing_low_pass.csv")
+    assert result.exit_code == 1, result.output
+    advice = " ".join(result.output.split("advice:")[1].split("cautions:")[0].split())
+    assert "move the placement (--place)" in advice
+    assert "a higher --rail-bandwidth" in advice
+
+
 def test_rig_json_has_the_design_keys_and_only_finite_numbers(demo_reports):
     _, report = demo_reports["landing_gusty"]
     assert set(report) == {

@@ -83,10 +83,15 @@ def _listed(names: list[str]) -> str:
 
 
 def _fixes_beyond_a_stretch(report: Report) -> str:
-    """What can help rows no stretch clears (position, reach, branch, singularity)."""
-    if "rail" not in report.axis_names:
+    """What can help rows no stretch clears (position, reach, branch, singularity, clearance);
+    `report` may be a rig's report."""
+    # a rig: its robots' own reports and the settings each was checked with
+    reports = getattr(report, "robots", {"": report})
+    used = getattr(report, "robot_settings", {"": report.settings})
+    railed = [name for name, r in reports.items() if "rail" in r.axis_names]
+    if not railed:
         rail = ""
-    elif getattr(report.settings, "rail", None) is RailPolicy.FOLLOW:
+    elif all(getattr(used[name], "rail", None) is RailPolicy.FOLLOW for name in railed):
         rail = "let the rail take more (a higher --rail-bandwidth), "
     else:
         rail = "let the rail take more (--rail follow, or another --rail-at), "
