@@ -119,7 +119,7 @@ def store_contents(store: Path) -> dict[str, tuple]:
     db = sqlite3.connect(store)
     rows = db.execute(
         "SELECT case_id, case_name, case_sha256, robot_sha256, settings_json, verdict, error, "
-        "samples, duration_s, worst_margin, worst_margin_axis, worst_margin_limit, slowdown, "
+        "samples, duration_s, worst_margin, worst_margin_axis, worst_margin_check, slowdown, "
         "counts_json, margins_json FROM cases"
     ).fetchall()
     out = {}

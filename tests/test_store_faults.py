@@ -113,8 +113,99 @@ def test_a_version_1_store_is_sealed_and_reads_the_same(scanned, tmp_path):
     db.close()
     before = load_summary(store)  # read-only: a schema 1 store is read as it is
     Store(store).close()  # opened for writing: upgraded
-    assert sqlite3.connect(store).execute("SELECT value FROM meta").fetchone() == ("2",)
+    assert sqlite3.connect(store).execute("SELECT value FROM meta").fetchone() == ("3",)
     assert load_summary(store).as_dict() == before.as_dict()
+
+
+#: The cases table as schema 2 wrote it (its check name in worst_margin_limit), kept here as
+#: it was so that the test does not depend on the program's own DDL.
+_SCHEMA_2_CASES = """
+CREATE TABLE cases (
+    case_id INTEGER PRIMARY KEY,
+    case_name TEXT NOT NULL UNIQUE,
+    case_path TEXT NOT NULL,
+    case_sha256 TEXT,
+    robot_name TEXT,
+    robot_sha256 TEXT NOT NULL,
+    settings_json TEXT NOT NULL,
+    verdict TEXT NOT NULL CHECK (verdict IN ('pass', 'fail', 'error')),
+    error TEXT,
+    samples INTEGER,
+    duration_s REAL,
+    worst_margin REAL,
+    worst_margin_axis TEXT,
+    worst_margin_limit TEXT,
+    slowdown REAL,
+    counts_json TEXT NOT NULL,
+    margins_json TEXT,
+    tool_version TEXT NOT NULL,
+    elapsed_s REAL NOT NULL,
+    checked_at TEXT NOT NULL,
+    worker TEXT NOT NULL,
+    run_id INTEGER NOT NULL REFERENCES runs (run_id),
+    row_sha256 TEXT,
+    parameters_json TEXT
+)"""
+
+
+def _schema_2_copy(store: Path, into: Path) -> None:
+    """A schema 2 store holding the rows (checksums included) of a schema 3 store."""
+    db = sqlite3.connect(into)
+    db.execute("ATTACH DATABASE ? AS new", (str(store),))
+    for name, sql in db.execute("SELECT name, sql FROM new.sqlite_master WHERE type='table'"):
+        db.execute(_SCHEMA_2_CASES if name == "cases" else sql)
+        db.execute(f"INSERT INTO main.{name} SELECT * FROM new.{name}")
+    db.execute("UPDATE main.meta SET value = '2' WHERE key = 'schema_version'")
+    db.commit()
+    db.execute("DETACH DATABASE new")
+    db.close()
+
+
+def _cases_columns(store: Path) -> set[str]:
+    with sqlite3.connect(store) as db:
+        return {r[1] for r in db.execute("PRAGMA table_info(cases)")}
+
+
+def test_a_version_2_store_is_read_as_it_is_and_renamed_when_opened_to_write(scanned, tmp_path):
+    """Schema 2 kept the check of the worst margin in a column named worst_margin_limit. Read
+    only, such a store reads the same cases as today's (checksums verified) and is not
+    changed by a byte; opened for writing, the column is renamed to worst_margin_check in one
+    transaction, the rows read the same, and their checksums still hold: an edited row is
+    still found."""
+    store = tmp_path / "v2.sqlite"
+    _schema_2_copy(scanned["store"], store)
+    assert "worst_margin_limit" in _cases_columns(store)
+    file_before = store.read_bytes()
+    today = load_summary(scanned["store"]).as_dict()
+    read = load_summary(store).as_dict()
+    assert read["results"] == today["results"]
+    assert {r["worst_margin_check"] for r in read["results"]} <= {"position", "speed", "accel"}
+    assert all("worst_margin_limit" not in r for r in read["results"])
+    assert store.read_bytes() == file_before  # reading changed nothing
+    code, output = _report(store)
+    assert code == 1 and '"worst_margin_check"' in output
+
+    Store(store).close()  # opened for writing: migrated
+    columns = _cases_columns(store)
+    assert "worst_margin_check" in columns and "worst_margin_limit" not in columns
+    with sqlite3.connect(store) as db:
+        assert db.execute("SELECT value FROM meta").fetchone() == ("3",)
+    assert load_summary(store).as_dict()["results"] == today["results"]
+    with sqlite3.connect(store) as db:
+        db.execute("UPDATE cases SET worst_margin_check = 'jerk' WHERE rowid = 1")
+    with pytest.raises(ReachgateError, match="checksum"):
+        load_summary(store)
+
+
+def test_a_schema_2_store_migrated_by_a_scan_resumes_every_case(scanned):
+    """A scan that opens a schema 2 store migrates it and takes every stored case as checked
+    (the checksums verified under the new column name): nothing is checked again. The copy
+    sits beside the original, since cases are known by their path relative to the store."""
+    store = scanned["store"].with_name("v2_resumed.sqlite")
+    _schema_2_copy(scanned["store"], store)
+    summary = scan(DEMO_ROBOT, scanned["cases"], CheckSettings(), store_path=store, workers=1)
+    assert (summary.checked, summary.resumed) == (0, len(scanned["cases"]))
+    assert "worst_margin_check" in _cases_columns(store)
 
 
 def _mount_tmpfs(where: Path, size: str) -> bool:

@@ -499,7 +499,7 @@ def _store_row(result: dict, name: str, common: dict) -> tuple[dict, list[tuple]
         "duration_s": report.get("duration_s"),
         "worst_margin": worst,
         "worst_margin_axis": worst_axis,
-        "worst_margin_limit": worst_limit,
+        "worst_margin_check": worst_limit,
         "slowdown": report.get("slowdown"),
         "counts_json": json.dumps(counts, sort_keys=True),
         "margins_json": None if margins is None else json.dumps(margins),

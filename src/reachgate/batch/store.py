@@ -29,9 +29,13 @@ from pathlib import Path
 from reachgate.checking.intervals import Check, Severity, Violation
 from reachgate.errors import ReachgateError
 
-#: Bumped when the tables change; a store of another version is refused, not guessed at
-#: (version 1 stores, which lack the row checksums, are brought to version 2 on open).
-SCHEMA_VERSION = 2
+#: Bumped when the tables change; a store of another version is refused, not guessed at.
+#: Older versions are read as they are when opened read-only and brought up to this one, in
+#: one transaction, when opened for writing: version 1 lacks the row checksums (the rows are
+#: sealed as they are), versions 1 and 2 name a column by its old name (_RENAMED_COLUMNS).
+SCHEMA_VERSION = 3
+#: Versions this program reads (and, opened for writing, upgrades).
+_READABLE_VERSIONS = ("1", "2", str(SCHEMA_VERSION))
 #: How long a write waits for another process holding the store (a second scan), s.
 BUSY_TIMEOUT_S = 30.0
 #: Columns added to a table after its schema version was set, with their SQL type: a store
@@ -39,6 +43,10 @@ BUSY_TIMEOUT_S = 30.0
 #: opened for writing. Programs that predate a column ignore it (checksums included: see
 #: row_checksum).
 _ADDED_COLUMNS = {"cases": {"parameters_json": "TEXT"}}
+#: Columns renamed in version 3, old name -> new name (worst_margin_limit held the name of a
+#: check, not a limit). A row checksum covers values by position, not by name, so rows sealed
+#: under the old name keep their checksums.
+_RENAMED_COLUMNS = {"cases": {"worst_margin_limit": "worst_margin_check"}}
 #: Checks that have no fraction of a limit to rank by: the path cannot be followed at all.
 _UNRANKED_CHECKS = frozenset({Check.REACH, Check.BRANCH})
 
@@ -70,7 +78,7 @@ CREATE TABLE IF NOT EXISTS cases (
     duration_s REAL,
     worst_margin REAL,
     worst_margin_axis TEXT,
-    worst_margin_limit TEXT,
+    worst_margin_check TEXT,
     slowdown REAL,
     counts_json TEXT NOT NULL,
     margins_json TEXT,
@@ -138,7 +146,7 @@ class CaseResult:
     duration_s: float | None
     worst_margin: float | None
     worst_margin_axis: str | None
-    worst_margin_limit: str | None
+    worst_margin_check: str | None
     slowdown: float | None
     counts: dict[str, CheckCount]
     margins: dict[str, dict[str, float]] | None
@@ -175,7 +183,7 @@ class CaseResult:
                 "duration_s": self.duration_s,
                 "worst_margin": self.worst_margin,
                 "worst_margin_axis": self.worst_margin_axis,
-                "worst_margin_limit": self.worst_margin_limit,
+                "worst_margin_check": self.worst_margin_check,
                 "slowdown": self.slowdown,
                 "counts": {k: c.as_dict() for k, c in self.counts.items()},
                 "first_violation": None if self.first is None else self.first.as_dict(),
@@ -267,7 +275,7 @@ def batch_counts(cases: tuple[CaseResult, ...]) -> dict[str, CheckCount]:
 _CHECKED_COLUMNS = (
     "case_name", "case_path", "case_sha256", "robot_name", "robot_sha256", "settings_json",
     "verdict", "error", "samples", "duration_s", "worst_margin", "worst_margin_axis",
-    "worst_margin_limit", "slowdown", "counts_json", "margins_json", "tool_version",
+    "worst_margin_check", "slowdown", "counts_json", "margins_json", "tool_version",
     "elapsed_s", "checked_at", "worker", "run_id",
 )  # fmt: skip
 _VIOLATION_COLUMNS = (
@@ -296,10 +304,16 @@ def row_checksum(values: dict, violations: Iterable[tuple]) -> str:
     return hashlib.sha256(text.encode("utf-8")).hexdigest()
 
 
+def _current_names(names: Iterable[str], values: Iterable) -> dict:
+    """column -> value of a cases row, under today's column names whatever the store's version."""
+    renamed = _RENAMED_COLUMNS["cases"]
+    return {renamed.get(name, name): value for name, value in zip(names, values, strict=True)}
+
+
 def _stored_checksum(db: sqlite3.Connection, case_id: int) -> str:
     """row_checksum of one case as it reads back from the store."""
     cursor = db.execute("SELECT * FROM cases WHERE case_id = ?", (case_id,))
-    values = dict(zip((d[0] for d in cursor.description), cursor.fetchone(), strict=True))
+    values = _current_names((d[0] for d in cursor.description), cursor.fetchone())
     children = db.execute(
         f"SELECT {', '.join(_VIOLATION_COLUMNS)} FROM violations WHERE case_id = ? ORDER BY seq",
         (case_id,),
@@ -365,16 +379,15 @@ class Store:
     def _prepare(self) -> None:
         tables = {r[0] for r in self.db.execute("SELECT name FROM sqlite_master")}
         if "meta" in tables:
-            row = self.db.execute("SELECT value FROM meta WHERE key='schema_version'").fetchone()
-            found = None if row is None else row[0]
-            if found == "1" and not self.read_only:
-                self._upgrade_from_1()
-            elif found not in ("1", str(SCHEMA_VERSION)):
+            found = self._version()
+            if found not in _READABLE_VERSIONS:
                 raise ReachgateError(
                     f"{self.path}: store schema version {found}, this program writes "
                     f"{SCHEMA_VERSION}; use another --store"
                 )
             if not self.read_only:
+                if found != str(SCHEMA_VERSION):
+                    self._write(self._upgrade)
                 self._add_missing_columns()
             return
         if tables:
@@ -387,6 +400,10 @@ class Store:
             + f"INSERT OR IGNORE INTO meta VALUES ('schema_version', '{SCHEMA_VERSION}');"
             + "COMMIT;"
         )
+
+    def _version(self) -> str | None:
+        row = self.db.execute("SELECT value FROM meta WHERE key='schema_version'").fetchone()
+        return None if row is None else row[0]
 
     def _add_missing_columns(self) -> None:
         """Give a store written before a column of _ADDED_COLUMNS that column (once)."""
@@ -402,22 +419,27 @@ class Store:
                 if name not in have:
                     self._write(add)
 
-    def _upgrade_from_1(self) -> None:
-        """Version 1 had no row checksums: add the column and seal the rows as they are."""
-        db = self.db
-        db.execute("BEGIN IMMEDIATE")
-        try:
+    def _upgrade(self, db: sqlite3.Connection) -> None:
+        """Bring an older store to SCHEMA_VERSION (inside _write's transaction, so a second
+        process that got there first leaves nothing to do, and a failure changes nothing).
+        Version 1 had no row checksums: add the column and seal the rows as they are. Versions
+        1 and 2: rename the columns of _RENAMED_COLUMNS."""
+        found = self._version()
+        if found == str(SCHEMA_VERSION):
+            return
+        if found == "1":
             db.execute("ALTER TABLE cases ADD COLUMN row_sha256 TEXT")
             for (case_id,) in db.execute("SELECT case_id FROM cases").fetchall():
                 db.execute(
                     "UPDATE cases SET row_sha256 = ? WHERE case_id = ?",
                     (_stored_checksum(db, case_id), case_id),
                 )
-            db.execute("UPDATE meta SET value = ? WHERE key = 'schema_version'", (SCHEMA_VERSION,))
-            db.execute("COMMIT")
-        except BaseException:
-            db.execute("ROLLBACK")
-            raise
+        for table, renamed in _RENAMED_COLUMNS.items():
+            have = {r[1] for r in db.execute(f"PRAGMA table_info({table})")}
+            for old, new in renamed.items():
+                if old in have:
+                    db.execute(f"ALTER TABLE {table} RENAME COLUMN {old} TO {new}")
+        db.execute("UPDATE meta SET value = ? WHERE key = 'schema_version'", (SCHEMA_VERSION,))
 
     def __enter__(self) -> Store:
         return self
@@ -477,11 +499,12 @@ class Store:
     # -- cases ------------------------------------------------------------------------------
 
     def _raw_rows(self) -> Iterable[tuple[int, dict, list[tuple]]]:
-        """(case_id, column -> value, violation tuples in seq order) of every stored case."""
+        """(case_id, column -> value under today's names, violation rows in seq order) of
+        every stored case."""
         db = self.db
         db.row_factory = sqlite3.Row
         try:
-            rows = db.execute("SELECT * FROM cases").fetchall()
+            rows = [_current_names(r.keys(), r) for r in db.execute("SELECT * FROM cases")]
             children: dict[int, list] = {}
             for v in db.execute("SELECT * FROM violations ORDER BY case_id, seq"):
                 children.setdefault(v["case_id"], []).append(v)
@@ -491,12 +514,12 @@ class Store:
             kids = children.get(r["case_id"], [])
             yield r["case_id"], r, kids
 
-    def _verified(self) -> list[tuple[sqlite3.Row, list[sqlite3.Row]]]:
+    def _verified(self) -> list[tuple[dict, list[sqlite3.Row]]]:
         """Every case row with its violation rows, each checked against its checksum."""
         out = []
         try:
             for _, row, kids in self._raw_rows():
-                stored = row["row_sha256"] if "row_sha256" in row.keys() else None
+                stored = row.get("row_sha256")
                 if stored is not None or not self.read_only:  # v1 read-only: nothing to check
                     tuples = [tuple(k[c] for c in _VIOLATION_COLUMNS) for k in kids]
                     if stored != row_checksum(row, tuples):
@@ -566,7 +589,7 @@ class Store:
         return tuple(sorted((_case(r, kids) for r, kids in rows), key=rank_key))
 
 
-def _case(row: sqlite3.Row, children: list[sqlite3.Row]) -> CaseResult:
+def _case(row: dict, children: list[sqlite3.Row]) -> CaseResult:
     violations = tuple(
         Violation(
             check=Check(v["check_name"]),
@@ -605,7 +628,7 @@ def _case(row: sqlite3.Row, children: list[sqlite3.Row]) -> CaseResult:
         duration_s=row["duration_s"],
         worst_margin=row["worst_margin"],
         worst_margin_axis=row["worst_margin_axis"],
-        worst_margin_limit=row["worst_margin_limit"],
+        worst_margin_check=row["worst_margin_check"],
         slowdown=row["slowdown"],
         counts=counts,
         margins=None if row["margins_json"] is None else json.loads(row["margins_json"]),
@@ -622,8 +645,8 @@ def _case(row: sqlite3.Row, children: list[sqlite3.Row]) -> CaseResult:
     )
 
 
-def _parameters(row: sqlite3.Row) -> dict | None:
-    if "parameters_json" not in row.keys() or row["parameters_json"] is None:
+def _parameters(row: dict) -> dict | None:
+    if row.get("parameters_json") is None:
         return None
     return json.loads(row["parameters_json"])
 

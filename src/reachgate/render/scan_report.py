@@ -47,7 +47,7 @@ def _stretch_leaves_rows(c: CaseResult) -> bool:
 def _margin_text(c: CaseResult) -> str:
     if c.worst_margin is None:
         return "-"
-    return f"{c.worst_margin:.2f} ({c.worst_margin_axis} {c.worst_margin_limit})"
+    return f"{c.worst_margin:.2f} ({c.worst_margin_axis} {c.worst_margin_check})"
 
 
 RANKED_TITLES = (
@@ -175,7 +175,7 @@ def render_csv(summary: ScanSummary) -> str:
             c.verdict.value,
             c.worst_margin,
             c.worst_margin_axis,
-            c.worst_margin_limit,
+            c.worst_margin_check,
             f and f.check.value,
             f and f.axis,
             f and f.start_s,
