@@ -143,8 +143,9 @@ def case_name(case_path: Path, store_path: Path) -> str:
 
 
 def file_sha256(path: str | Path) -> str:
-    try:
-        return hashlib.sha256(Path(path).read_bytes()).hexdigest()
+    try:  # read in blocks: a case file may be larger than the memory the check needs
+        with Path(path).open("rb") as file:
+            return hashlib.file_digest(file, "sha256").hexdigest()
     except OSError as error:
         raise ReachgateError(f"{path}: cannot read ({error.strerror or error})") from None
 

@@ -39,6 +39,9 @@ import numpy as np
 DEFAULT_LAG_TOL_RAD = math.radians(0.1)
 #: Below this rotation angle (rad) the series forms of exp and log are used.
 SMALL_ANGLE = 1e-6
+#: Samples per block of lag_errors: bounds its temporary arrays (a few dozen per sample) on
+#: long runs; each block reads the samples its delayed times fall between.
+LAG_BLOCK_SAMPLES = 65_536
 
 
 class Prediction(Enum):
@@ -161,28 +164,28 @@ def _causal_weights(d: list[np.ndarray]) -> tuple[list[np.ndarray], list[np.ndar
     return w1, w2
 
 
-def _causal_coefficients(t_s: np.ndarray, p_m: np.ndarray, q: Quat, degree: int):
-    """First and second coefficients, in time from each sample, of the polynomials through
-    the newest degree + 2 samples up to it: (c1, c2) for positions, each (N, 3), and
-    (ξ1, ξ2) for the rotation vectors log(q_kᵀ·q_j) seen from the newest sample k, each a
-    tuple of 3 (N,) arrays. Before the first sample the command is held at its first pose,
-    one first step apart."""
+def _causal_coefficients(t_s: np.ndarray, p_m: np.ndarray, q: Quat, degree: int, lo: int, hi: int):
+    """First and second coefficients, in time from each sample lo..hi-1, of the polynomials
+    through the newest degree + 2 samples up to it: (c1, c2) for positions, each (hi - lo, 3),
+    and (ξ1, ξ2) for the rotation vectors log(q_kᵀ·q_j) seen from the newest sample k, each a
+    tuple of 3 (hi - lo,) arrays. Before the first sample the command is held at its first
+    pose, one first step apart."""
     m = degree + 2
-    n = t_s.size
-    newest = np.arange(n)
+    newest = np.arange(lo, hi)
     first_step = t_s[1] - t_s[0]
-    d, past = [np.zeros(n)], [newest]
+    d, past = [np.zeros(newest.size)], [newest]
     for j in range(1, m):
         source = newest - j
         d.append(
-            np.where(source < 0, t_s[0] + source * first_step, t_s[np.maximum(source, 0)]) - t_s
+            np.where(source < 0, t_s[0] + source * first_step, t_s[np.maximum(source, 0)])
+            - t_s[lo:hi]
         )
         past.append(np.maximum(source, 0))
     w1, w2 = _causal_weights(d)
     c1 = sum(w1[j][:, None] * p_m[past[j]] for j in range(m))
     c2 = sum(w2[j][:, None] * p_m[past[j]] for j in range(m))
-    seen = _conjugate(q)
-    xi1, xi2 = [np.zeros(n)] * 3, [np.zeros(n)] * 3
+    seen = _conjugate(tuple(c[lo:hi] for c in q))
+    xi1, xi2 = [np.zeros(newest.size)] * 3, [np.zeros(newest.size)] * 3
     for j in range(1, m):  # the newest sample's own rotation vector is 0
         v = _log(_multiply(seen, tuple(c[past[j]] for c in q)))
         xi1 = [a + w1[j] * b for a, b in zip(xi1, v, strict=True)]
@@ -203,30 +206,33 @@ def predicted_poses(
     docstring: the command at t − lag, extrapolated over lag by the prediction's degree.
     """
     t_s, p_m = np.asarray(t_s, dtype=float), np.asarray(p_m, dtype=float)
-    p_hat, q_hat = _predicted(t_s, p_m, _split(np.asarray(q_wxyz, dtype=float)), lag_s, prediction)
+    q = _split(np.asarray(q_wxyz, dtype=float))
+    p_hat, q_hat = _predicted(t_s, p_m, q, lag_s, prediction, 0, t_s.size)
     return np.column_stack(p_hat), np.column_stack(q_hat)
 
 
-def _predicted(t_s, p_m, q: Quat, lag_s, prediction):
-    """(p̂ as 3 (N,) arrays, q̂ as a Quat)."""
-    s = t_s - lag_s
-    # np.interp: the same clamped linear interpolation as _bracket, and the fastest
-    p_hat = [np.interp(s, t_s, p_m[:, c]) for c in range(3)]
+def _predicted(t_s, p_m, q: Quat, lag_s, prediction, start: int, stop: int):
+    """(p̂ as 3 arrays, q̂ as a Quat) at samples start..stop-1, from the samples they need."""
+    s = t_s[start:stop] - lag_s
     k, alpha = _bracket(t_s, s)
+    lo, hi = int(k.min()), int(k.max()) + 2  # the samples s falls between
+    # np.interp: the same clamped linear interpolation as _bracket, and the fastest
+    p_hat = [np.interp(s, t_s[lo:hi], p_m[lo:hi, c]) for c in range(3)]
     q_hat = _between(q, k, alpha)
     degree = prediction.degree
     if degree:
-        (c1, c2), (xi1, xi2) = _causal_coefficients(t_s, p_m, q, degree)
-        step = [np.zeros(t_s.size)] * 3
+        (c1, c2), (xi1, xi2) = _causal_coefficients(t_s, p_m, q, degree, lo, hi)
+        here, after = k - lo, k + 1 - lo
+        step = [np.zeros(s.size)] * 3
         for power, (c, xi) in enumerate([(c1, xi1), (c2, xi2)][:degree], start=1):
             scale = lag_s**power
             for axis in range(3):
                 c_axis = c[:, axis]
                 p_hat[axis] = p_hat[axis] + scale * (
-                    (1.0 - alpha) * c_axis[k] + alpha * c_axis[k + 1]
+                    (1.0 - alpha) * c_axis[here] + alpha * c_axis[after]
                 )
                 step[axis] = step[axis] + scale * (
-                    (1.0 - alpha) * xi[axis][k] + alpha * xi[axis][k + 1]
+                    (1.0 - alpha) * xi[axis][here] + alpha * xi[axis][after]
                 )
         q_hat = _multiply(q_hat, _exp(tuple(step)))
     return p_hat, q_hat
@@ -241,9 +247,16 @@ def lag_errors(
 ) -> LagErrors:
     """Tracking errors (N,) of a rig that reaches each commanded pose lag_s late: the distance
     and the rotation angle between the commanded pose and the one the rig holds
-    (predicted_poses). A rigid placement changes neither, so any one frame serves."""
+    (predicted_poses). A rigid placement changes neither, so any one frame serves.
+    Computed LAG_BLOCK_SAMPLES at a time, each block from the samples it reaches back to."""
     t_s, p_m = np.asarray(t_s, dtype=float), np.asarray(p_m, dtype=float)
     q = _split(np.asarray(q_wxyz, dtype=float))
-    p_hat, q_hat = _predicted(t_s, p_m, q, lag_s, prediction)
-    squared = sum((p_m[:, c] - p_hat[c]) ** 2 for c in range(3))
-    return LagErrors(position_m=np.sqrt(squared), angle_rad=_angle_between(q_hat, q))
+    n = t_s.size
+    position_m, angle_rad = np.empty(n), np.empty(n)
+    for start in range(0, n, LAG_BLOCK_SAMPLES):
+        stop = min(start + LAG_BLOCK_SAMPLES, n)
+        p_hat, q_hat = _predicted(t_s, p_m, q, lag_s, prediction, start, stop)
+        squared = sum((p_m[start:stop, c] - p_hat[c]) ** 2 for c in range(3))
+        position_m[start:stop] = np.sqrt(squared)
+        angle_rad[start:stop] = _angle_between(q_hat, tuple(c[start:stop] for c in q))
+    return LagErrors(position_m=position_m, angle_rad=angle_rad)
