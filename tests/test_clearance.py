@@ -12,6 +12,8 @@ from reachgate.checking.clearance import (
     ClearanceSettings,
     PlacedRobot,
     _pair_distance,
+    _pair_distances,
+    _pose_at,
     _Scene,
     check_clearance,
     margin_of,
@@ -263,6 +265,45 @@ def test_broad_phase_and_blocks_give_the_rows_of_an_exhaustive_evaluation(
     sampled = [r for r in result.rows if "between the samples" not in str(r)]
     key = lambda r: (r.axis, r.start_s, r.severity.value)  # noqa: E731
     assert sorted(map(key, sampled)) == sorted(map(key, expected_rows))
+
+
+@pytest.mark.parametrize("batch", [65_536, 50, 1], ids=["one-call", "split", "one-job-each"])
+def test_pairs_measured_together_equal_pairs_measured_alone_bit_for_bit(monkeypatch, batch):
+    """_pair_distances, which measures every primitive pair of one kind over all pairs in one
+    call (up to BATCH_SAMPLES samples), gives exactly the values of _pair_distance pair by pair
+    at each pair's own positions: segments, boxes of two sizes, a box obstacle and a plane;
+    one robot posed at a single sample (its primitives broadcast)."""
+    monkeypatch.setattr(clearance_module, "BATCH_SAMPLES", batch)
+    robots, obstacles = two_arm_rig()
+    plan = plan_pairs(robots, obstacles, ClearanceSettings(0.05, 0.30))
+    scene = _Scene(robots, obstacles)
+    rng = np.random.default_rng(1317)
+    count = 40
+    safe_q = [p.robot.home + rng.uniform(-0.8, 0.8, (count, p.robot.n_axes)) for p in robots]
+    wanted = [rng.random(count) < 0.6, np.arange(count) == 7]
+    poses, rank = _pose_at(scene, safe_q, wanted)
+    requests = []
+    for a_name, b_name in plan.checked:
+        a, b = scene.by_name[a_name], scene.by_name[b_name]
+        usable = np.ones(count, bool)
+        for shape in (a, b):
+            if shape.robot is not None:
+                usable &= wanted[shape.robot]
+        positions = np.flatnonzero(usable)[: rng.integers(1, 8)]
+        if positions.size:
+            requests.append(((a, b), positions))
+    kinds = {type(p).__name__ for ab, _ in requests for s in ab for p in scene.primitives(s, poses)}
+    assert kinds == {"Segment", "OrientedBox", "HalfSpace"}
+
+    class Pair:
+        def __init__(self, a, b):
+            self.a, self.b = a, b
+
+    together = _pair_distances(scene, [(Pair(*ab), at) for ab, at in requests], poses, rank)
+    for ((a, b), positions), value in zip(requests, together, strict=True):
+        where = [None if s.robot is None else rank[s.robot][positions] for s in (a, b)]
+        alone = _pair_distance(scene.primitives(a, poses), scene.primitives(b, poses), *where)
+        np.testing.assert_array_equal(value, alone)
 
 
 def test_untrusted_samples_are_left_out_and_said():

@@ -59,6 +59,10 @@ BLOCK_LEVELS = (512, 64, 8)
 #: Samples per chunk of work (a multiple of the coarsest block): bounds the memory of the
 #: posed shapes on long runs.
 CHUNK_SAMPLES = 65_536
+#: Most samples measured in one call of a distance kernel by _pair_distances (bounds the
+#: memory of the gathered copies; many pairs go into one call, whose numpy overhead is then
+#: paid once and not per pair).
+BATCH_SAMPLES = 65_536
 #: Bisection depth for a step the between-sample bound cannot clear: each halving halves the
 #: motion bound, so 2^-24 of the step's motion is left unresolved at most.
 MAX_BISECTIONS = 24
@@ -252,25 +256,102 @@ def primitive_size(primitive: Primitive) -> int:
     return 1
 
 
+def _in_order(a: Primitive, b: Primitive) -> tuple[Primitive, Primitive, bool]:
+    """The two primitives in the order the distance kernels take them (segment first, then
+    box, then half-space), and whether they were swapped."""
+    if isinstance(b, Segment) and not isinstance(a, Segment):
+        return b, a, True
+    if isinstance(b, OrientedBox) and isinstance(a, HalfSpace):
+        return b, a, True
+    return a, b, False
+
+
 def _primitive_distance(a: Primitive, b: Primitive) -> np.ndarray:
     """Signed distance between two primitives (radii taken off), broadcast over samples."""
-    if isinstance(b, Segment) and not isinstance(a, Segment):
-        a, b = b, a
-    if isinstance(b, OrientedBox) and isinstance(a, HalfSpace):
-        a, b = b, a
-    if isinstance(a, Segment):
-        if isinstance(b, Segment):
-            core = segment_segment(a.p0_m, a.p1_m, b.p0_m, b.p1_m)
-            return core - (a.radius_m + b.radius_m)
-        if isinstance(b, OrientedBox):
-            return segment_box(a.p0_m, a.p1_m, b.center_m, b.axes, b.half_m) - a.radius_m
-        return segment_halfspace(a.p0_m, a.p1_m, b.point_m, b.normal) - a.radius_m
-    if isinstance(a, OrientedBox):
-        if isinstance(b, OrientedBox):
-            return box_box(a.center_m, a.axes, a.half_m, b.center_m, b.axes, b.half_m)
-        if isinstance(b, HalfSpace):
-            return box_halfspace(a.center_m, a.axes, a.half_m, b.point_m, b.normal)
+    a, b, _ = _in_order(a, b)
+    return _kernel(type(a), type(b), _fields(a), _fields(b))
+
+
+def _fields(primitive: Primitive) -> tuple:
+    """The arrays a kernel reads: Segment (p0, p1, radius), OrientedBox (centre, axes, half
+    sizes), HalfSpace (point, normal)."""
+    if isinstance(primitive, Segment):
+        return primitive.p0_m, primitive.p1_m, primitive.radius_m
+    if isinstance(primitive, OrientedBox):
+        return primitive.center_m, primitive.axes, primitive.half_m
+    return primitive.point_m, primitive.normal
+
+
+def _kernel(kind_a: type, kind_b: type, a: tuple, b: tuple) -> np.ndarray:
+    """Distance of two primitives given as _fields, kinds in _in_order; radii and half sizes
+    may be numbers or one per sample."""
+    if kind_a is Segment:
+        if kind_b is Segment:
+            return segment_segment(a[0], a[1], b[0], b[1]) - (a[2] + b[2])
+        if kind_b is OrientedBox:
+            return segment_box(a[0], a[1], b[0], b[1], b[2]) - a[2]
+        return segment_halfspace(a[0], a[1], b[0], b[1]) - a[2]
+    if kind_a is OrientedBox:
+        if kind_b is OrientedBox:
+            return box_box(a[0], a[1], a[2], b[0], b[1], b[2])
+        if kind_b is HalfSpace:
+            return box_halfspace(a[0], a[1], a[2], b[0], b[1])
     raise ReachgateError("two half-spaces are never a checked pair")  # plan_pairs excludes it
+
+
+def _gathered(primitive: Primitive, index, m: int) -> tuple:
+    """_fields at the samples `index` (None: the primitive's own samples), every field one
+    value per sample: (..., m) arrays."""
+    fields = _fields(_take(primitive, index))
+    if isinstance(primitive, Segment):
+        fields = (*fields[:2], np.float64(fields[2]))
+    elif isinstance(primitive, OrientedBox):
+        fields = (*fields[:2], np.asarray(fields[2], dtype=float)[:, None])
+    return tuple(np.broadcast_to(f, (*np.shape(f)[:-1], m)) for f in fields)
+
+
+def _pair_distances(scene: _Scene, requests, poses, rank) -> list[np.ndarray]:
+    """Least distance over each pair's primitives at its chunk positions, for many pairs.
+
+    requests: (state, positions (M,)) with M > 0; poses, rank: from _pose_at. The same values
+    as _distance_at pair by pair: every primitive pair of one kind, over every request, is
+    measured in one kernel call of up to BATCH_SAMPLES samples, so the cost of the numpy
+    calls is paid per kind and not per pair. -> (M,) per request.
+    """
+    groups: dict[tuple[type, type], list] = {}
+    for r, (state, positions) in enumerate(requests):
+        where = [None if s.robot is None else rank[s.robot][positions] for s in (state.a, state.b)]
+        for pa in scene.primitives(state.a, poses):
+            for pb in scene.primitives(state.b, poses):
+                a, b, swapped = _in_order(pa, pb)
+                index_a, index_b = where[::-1] if swapped else where
+                job = (r, a, index_a, b, index_b, positions.size)
+                groups.setdefault((type(a), type(b)), []).append(job)
+    out: list[np.ndarray | None] = [None] * len(requests)
+    for kind, jobs in groups.items():
+        start = 0
+        while start < len(jobs):
+            stop, total = start, 0
+            while stop < len(jobs) and (stop == start or total + jobs[stop][5] <= BATCH_SAMPLES):
+                total += jobs[stop][5]
+                stop += 1
+            batch = jobs[start:stop]
+            sides = [
+                [_gathered(job[1 + 2 * side], job[2 + 2 * side], job[5]) for job in batch]
+                for side in (0, 1)
+            ]
+            fields = [
+                tuple(np.concatenate(parts, axis=-1) for parts in zip(*side, strict=True))
+                for side in sides
+            ]
+            values = _kernel(*kind, *fields)
+            at = 0
+            for r, *_, m in batch:
+                value = values[at : at + m]
+                out[r] = value if out[r] is None else np.minimum(out[r], value)
+                at += m
+            start = stop
+    return out
 
 
 def _pair_distance(prims_a, prims_b, index_a=None, index_b=None) -> np.ndarray:
@@ -426,13 +507,6 @@ def _pose_at(scene, safe_q, wanted):
     return poses, [np.cumsum(mask) - 1 for mask in wanted]
 
 
-def _distance_at(scene, state, poses, rank, positions) -> np.ndarray:
-    where = [None if s.robot is None else rank[s.robot][positions] for s in (state.a, state.b)]
-    return _pair_distance(
-        scene.primitives(state.a, poses), scene.primitives(state.b, poses), *where
-    )
-
-
 def _chunk(scene, settings, t_s, qs, good_all, states, first, stop) -> None:
     """Rows, margins and between-sample candidates of samples [first, stop) of every pair.
 
@@ -463,11 +537,12 @@ def _chunk(scene, settings, t_s, qs, good_all, states, first, stop) -> None:
                 if shape.robot is not None:
                     wanted[shape.robot][kept * size] = True
         poses, rank = _pose_at(scene, safe_q, wanted)
-        for i, state in enumerate(states):
-            kept = blocks[i]
-            if kept.size == 0:
-                continue
-            lower = _distance_at(scene, state, poses, rank, kept * size)
+        live = [i for i, kept in enumerate(blocks) if kept.size]
+        measured = _pair_distances(
+            scene, [(states[i], blocks[i] * size) for i in live], poses, rank
+        )
+        for i, lower in zip(live, measured, strict=True):
+            state, kept = states[i], blocks[i]
             for shape in (state.a, state.b):
                 if shape.robot is not None:
                     lower = lower - motion[shape.robot][kept, shape.part]
@@ -496,12 +571,15 @@ def _chunk(scene, settings, t_s, qs, good_all, states, first, stop) -> None:
                 wanted[shape.robot] |= mask
     poses, rank = _pose_at(scene, safe_q, wanted)
     t_chunk = t_s[first:stop]
-    for state, mask in zip(states, masks, strict=True):
-        index = np.flatnonzero(mask)
+    indices = [np.flatnonzero(mask) for mask in masks]
+    live = [i for i, index in enumerate(indices) if index.size]
+    requests = [(states[i], indices[i]) for i in live]
+    measured = dict(zip(live, _pair_distances(scene, requests, poses, rank), strict=True))
+    for i, (state, index) in enumerate(zip(states, indices, strict=True)):
         if index.size == 0:
             state.stream.feed(t_chunk[:1], [-np.inf], [np.inf], settings.min_m)
             continue
-        d = np.where(good[index], _distance_at(scene, state, poses, rank, index), np.nan)
+        d = np.where(good[index], measured.pop(i), np.nan)
         in_chunk = index < stop - first
         _record(state, settings, t_chunk, index[in_chunk], d[in_chunk], first)
         _flag_steps(scene, settings, state, safe_q, index, d, first)

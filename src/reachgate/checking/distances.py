@@ -1,7 +1,8 @@
 """Signed distances between primitives over whole arrays (DESIGN §9), numpy only.
 
 Points and vectors are component-major arrays (3, M) (or (3, 1) to broadcast a fixed shape),
-box axes (3, 3, M) with axes[c] the box's c-th unit axis, half sizes (3,). Every function
+box axes (3, 3, M) with axes[c] the box's c-th unit axis, half sizes (3,) (or (3, M): boxes of
+several sizes in one call). Every function
 returns (M,) distances in metres between the *cores* (segments, boxes, half-spaces); the caller
 subtracts capsule radii. Negative values mean overlap: for half-spaces the exact depth, for a
 segment inside a box minus the depth of its deepest point (see segment_box).
@@ -122,7 +123,7 @@ def _squared_distance(c, d, h, t):
 def segment_box(p0, p1, center, axes, half) -> np.ndarray:
     """Signed distance between segment p0-p1 (3, M) and an oriented box -> (M,).
 
-    center (3, M), axes (3, 3, M), half (3,). Apart: the exact distance. Along the segment
+    center (3, M), axes (3, 3, M), half (3,) or (3, M). Apart: the exact distance. Along the segment
     the squared distance to the box is convex and piecewise quadratic in the parameter t; its
     derivative is monotone with breakpoints where a coordinate crosses a face plane. The root
     is bracketed between the last breakpoint with a non-positive derivative and the first
@@ -172,6 +173,7 @@ def _deepest_point_depth(c, d, h, mask) -> np.ndarray:
     """
     cs = [np.broadcast_to(v, mask.shape)[mask] for v in c]
     ds = [np.broadcast_to(v, mask.shape)[mask] for v in d]
+    h = [np.broadcast_to(v, mask.shape)[mask] for v in h]
     count = cs[0].size
     # the six lines: sign * (c_k + t d_k) - h_k
     lines = [(s * cs[k], s * ds[k], h[k]) for k in range(3) for s in (-1.0, 1.0)]
