@@ -398,7 +398,9 @@ def rig_command(
 
 @app.command("perturb")
 def perturb_command(
-    nominal: Annotated[Path, typer.Argument(help="Nominal trajectory (CSV).")],
+    nominal: Annotated[
+        Path, typer.Argument(help="Nominal trajectory, or a scenario of several bodies (CSV).")
+    ],
     count: Annotated[int, typer.Option("--count", help="Number of cases to write.")],
     seed: Annotated[int, typer.Option("--seed", help="Seed; the same seed gives the same files.")],
     intensity: Annotated[
@@ -429,20 +431,27 @@ def perturb_command(
             help="Remove the cases perturb wrote in --out with other settings, then write.",
         ),
     ] = False,
+    body: Annotated[
+        str | None,
+        typer.Option(
+            "--body",
+            help="A scenario of several bodies: the body the gusts move (the others as given).",
+        ),
+    ] = None,
 ) -> None:
     """Write disturbance cases of a nominal path: Dryden turbulence (MIL-F-8785C), for a scan."""
-    from reachgate.model.trajectory import load_trajectory
+    from reachgate.model.trajectory import load_scenario
     from reachgate.motion.disturb import iter_disturbance_cases
     from reachgate.render.cases import write_case_files
 
     if intensity is None and sigma is None:
         intensity = "moderate"
-    path = _guarded(lambda: load_trajectory(nominal))
+    path = _guarded(lambda: load_scenario(nominal))
     cases = _guarded(
         lambda: iter_disturbance_cases(
             path, count, seed, intensity=intensity, sigma_m_s=sigma,
             airspeed_m_s=airspeed, altitude_m=altitude, washout_s=washout,
-            response_hz=response_hz,
+            response_hz=response_hz, body=body,
         )
     )  # fmt: skip
     out_dir = out if out is not None else nominal.parent / f"{nominal.stem}_cases"
@@ -562,9 +571,13 @@ class ScanFormat(str, Enum):
 
 @app.command("scan")
 def scan_command(
+    ctx: typer.Context,
     robot: Annotated[
         Path | None,
-        typer.Argument(help="Robot description (TOML); optional with --report."),
+        typer.Argument(
+            help="Robot description or rig file (TOML; a rig's cases are scenarios); "
+            "optional with --report."
+        ),
     ] = None,
     cases: Annotated[
         list[str] | None,
@@ -638,11 +651,24 @@ def scan_command(
     else:
         if robot is None or not cases:
             _fail_bad_input("scan needs ROBOT and at least one case (file, folder or glob)")
+        if out is not None:
+            from reachgate.model.rig import load_rig
+
+            model = _guarded(lambda: load_rig(robot))
+            _refuse_overwriting_inputs(
+                {"--out": out},
+                {f"robot file of {r.name}": Path(r.robot.source) for r in model.robots},
+            )
         settings = _guarded(
             lambda: settings_from_options(
                 place, rail, rail_at, rail_bandwidth, lag, lag_tol, lag_tol_deg, predict, ends
             )
         )
+        rails = None
+        if _given(ctx, "rail", "rail_at", "rail_bandwidth"):  # else a rig's own rail choices
+            from reachgate.checking.rig_check import RailChoice
+
+            rails = RailChoice(settings.rail, settings.rail_at_m, settings.rail_bandwidth_hz)
         if cluster:
             _quiet_dask_logging()
         bar = nullcontext(None) if quiet or not sys.stderr.isatty() else ProgressBar()
@@ -658,6 +684,7 @@ def scan_command(
                         cluster=cluster,
                         fresh=fresh,
                         progress=show,
+                        rails=rails,
                     )
                 )
         except KeyboardInterrupt:

@@ -292,26 +292,44 @@ class Rechecked:
 
 
 def settings_from_dict(settings: dict):
-    """CheckSettings from its as_dict() form (as stored with each case)."""
-    from reachgate.checking.pipeline import CheckSettings, Placement
-    from reachgate.checking.rail import RailPolicy
+    """(CheckSettings, rails) from the settings stored with each case: CheckSettings.as_dict(),
+    or a rig's (model_files.scan_settings; rails None when the rig file chose them)."""
+    from reachgate.checking.lag import DEFAULT_LAG_TOL_RAD, Prediction
+    from reachgate.checking.pipeline import CheckSettings, Ends, Placement
+    from reachgate.checking.rail import DEFAULT_BANDWIDTH_HZ, RailPolicy
+    from reachgate.checking.rig_check import RailChoice
 
     placement = Placement(
         tuple(settings["place_xyz_m"]), tuple(math.radians(v) for v in settings["place_rpy_deg"])
     )
+    rails = None
+    if "robots" not in settings:
+        rail = settings
+    else:  # a rig: the command line's choice was the same for every robot with a rail
+        with_rail = [r for r in settings["robots"].values() if r["rail"] is not None]
+        rail = with_rail[0] if with_rail else {"rail": "fixed", "rail_at_m": None}
+        rail = {"rail_bandwidth_hz": DEFAULT_BANDWIDTH_HZ, **rail}
+    choice = RailChoice(RailPolicy(rail["rail"]), rail["rail_at_m"], rail["rail_bandwidth_hz"])
+    if settings.get("rails_from") == "command line":
+        rails = choice
     return CheckSettings(
         placement=placement,
-        rail=RailPolicy(settings["rail"]),
-        rail_at_m=settings["rail_at_m"],
-        rail_bandwidth_hz=settings["rail_bandwidth_hz"],
+        rail=choice.policy,
+        rail_at_m=choice.at_m,
+        rail_bandwidth_hz=choice.bandwidth_hz,
         lag_s=settings["lag_s"],
         lag_tol_m=settings["lag_tol_m"],
-    )
+        lag_tol_rad=settings.get("lag_tol_rad", DEFAULT_LAG_TOL_RAD),
+        predict=Prediction(settings.get("predict", "none")),
+        ends=Ends(settings.get("ends", "rest")),
+    ), rails
 
 
 def robot_files(store_path: Path, robot_path: Path | None) -> dict[str, Path]:
-    """robot sha256 -> a robot file that has it now: ROBOT if given, else the runs' robot
-    paths (newest run first) whose files still hold the content they were scanned with."""
+    """robot or rig fingerprint (model_files) -> a robot or rig file that has it now: ROBOT if
+    given, else the runs' robot paths (newest run first) whose files (a rig's robot files
+    too) still hold the content they were scanned with."""
+    from reachgate.batch.model_files import file_fingerprint
     from reachgate.batch.store import Store
 
     candidates = [] if robot_path is None else [Path(robot_path)]
@@ -321,18 +339,20 @@ def robot_files(store_path: Path, robot_path: Path | None) -> dict[str, Path]:
     found: dict[str, Path] = {}
     for path in candidates:
         try:
-            found.setdefault(_sha256(path), path)
-        except OSError:
+            found.setdefault(file_fingerprint(path), path)
+        except ReachgateError:
             continue
     return found
 
 
 def recheck_worst(summary: ScanSummary, count: int, robot_path: Path | None = None):
     """Check the `count` worst failing cases again (their pictures need the solved arrays,
-    which the store does not keep). -> tuple of Rechecked, worst first."""
+    which the store does not keep). -> tuple of Rechecked, worst first; `robot` is the Robot,
+    or the Rig (and `report` a RigReport) for a rig's cases."""
     from reachgate.checking.pipeline import check
-    from reachgate.model.robot import load_robot
-    from reachgate.model.trajectory import load_trajectory
+    from reachgate.checking.rig_check import check_rig
+    from reachgate.model.rig import load_rig
+    from reachgate.model.trajectory import load_scenario, load_trajectory
 
     worst = [c for c in summary.cases if c.verdict is CaseVerdict.FAIL][:count]
     if not worst:
@@ -349,9 +369,15 @@ def recheck_worst(summary: ScanSummary, count: int, robot_path: Path | None = No
             if c.case_sha256 is None or _sha256(Path(c.path)) != c.case_sha256:
                 out.append(Rechecked(c, None, None, f"{c.path} changed since the scan"))
                 continue
-            robot = loaded.get(c.robot_sha256) or load_robot(robot_file)
-            loaded[c.robot_sha256] = robot
-            report = check(robot, load_trajectory(c.path), settings_from_dict(c.settings))
+            rig = loaded.get(c.robot_sha256) or load_rig(robot_file)
+            loaded[c.robot_sha256] = rig
+            settings, rails = settings_from_dict(c.settings)
+            if rig.alone:
+                robot = rig.robots[0].robot
+                report = check(robot, load_trajectory(c.path), settings)
+            else:
+                robot = rig
+                report = check_rig(rig, load_scenario(c.path), settings, rails)
         except OSError as error:
             out.append(Rechecked(c, None, None, f"{c.path}: {error.strerror or error}"))
             continue

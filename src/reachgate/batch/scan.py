@@ -22,10 +22,11 @@ from collections.abc import Callable, Iterable, Iterator, Sequence
 from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 from concurrent.futures.process import BrokenProcessPool
 from contextlib import ExitStack, closing, contextmanager
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from datetime import UTC, datetime
 from pathlib import Path
 
+from reachgate.batch.model_files import RigFiles, fingerprint, read_model_files, scan_settings
 from reachgate.batch.store import (
     CaseResult,
     CaseVerdict,
@@ -38,10 +39,12 @@ from reachgate.batch.store import (
 from reachgate.checking.intervals import Check, Severity
 from reachgate.checking.pipeline import CheckSettings, check
 from reachgate.checking.rail import rail_positions
+from reachgate.checking.rig_check import RailChoice, check_rig, robot_settings
 from reachgate.errors import ClusterLostError, ReachgateError
 from reachgate.model.columnar import COLUMNAR_SUFFIXES
-from reachgate.model.robot import Robot, load_robot, robot_from_dict
-from reachgate.model.trajectory import import_fast_reader, load_trajectory
+from reachgate.model.rig import Rig
+from reachgate.model.robot import Robot, parse_toml_bytes, robot_from_dict
+from reachgate.model.trajectory import import_fast_reader, load_scenario, load_trajectory
 from reachgate.motion.case_parameters import read_case_parameters
 from reachgate.version import __version__
 
@@ -152,18 +155,30 @@ def file_sha256(path: str | Path) -> str:
 
 # -- the worker side -----------------------------------------------------------------------
 
-_ROBOTS: dict[bytes, Robot] = {}
+_MODELS: dict[bytes | RigFiles, Robot | Rig] = {}
 
 
-def _robot_for(robot_raw: bytes, robot_label: str) -> Robot:
-    """The robot, parsed once per worker process (the parent validated the file already)."""
-    robot = _ROBOTS.get(robot_raw)
-    if robot is None:
-        import tomllib
+def _model_for(robot_raw: bytes | RigFiles, robot_label: str) -> Robot | Rig:
+    """The robot (from its file's bytes) or the rig (RigFiles), built once per worker process
+    (the parent validated the files already)."""
+    model = _MODELS.get(robot_raw)
+    if model is None:
+        if isinstance(robot_raw, RigFiles):
+            model = robot_raw.load()
+        else:
+            data = parse_toml_bytes(robot_raw, robot_label, "robot")
+            model = robot_from_dict(data, source=robot_label)
+        _MODELS[robot_raw] = model
+    return model
 
-        robot = robot_from_dict(tomllib.loads(robot_raw.decode("utf-8")), source=robot_label)
-        _ROBOTS[robot_raw] = robot
-    return robot
+
+def _rig_excess_fraction(rig: Rig, row) -> float | None:
+    """_excess_fraction of a rig check's row: its axis `robot.axis` (plain names for a rig of
+    one robot) looked up in its own robot; clearance rows by their distance."""
+    if row.check is Check.CLEARANCE or len(rig.robots) == 1:
+        return _excess_fraction(rig.robots[0].robot, row)
+    name, _, axis = row.axis.partition(".")
+    return _excess_fraction(rig.robot(name).robot, replace(row, axis=axis))
 
 
 def _excess_fraction(robot: Robot, row) -> float | None:
@@ -171,7 +186,8 @@ def _excess_fraction(robot: Robot, row) -> float | None:
 
     position: beyond the range end / half the range (the scale of report margins);
     speed, accel, jerk, lag: worst / limit - 1; singularity: (floor - measure) / floor;
-    reach, branch: None (no limit to scale by). Negative for near rows.
+    clearance: (min_m - distance) / min_m; reach, branch: None (no limit to scale by).
+    Negative for near rows.
     """
     kind = row.check
     if kind is Check.POSITION:
@@ -181,13 +197,18 @@ def _excess_fraction(robot: Robot, row) -> float | None:
         return beyond / (0.5 * (axis.upper - axis.lower))
     if kind in (Check.SPEED, Check.ACCEL, Check.JERK, Check.LAG):
         return row.worst / row.limit - 1.0
-    if kind is Check.SINGULARITY:
+    if kind in (Check.SINGULARITY, Check.CLEARANCE):
         return (row.limit - row.worst) / row.limit
     return None
 
 
-def check_case(case_path: str, settings: CheckSettings, robot_raw: bytes, robot_label: str) -> dict:
+def check_case(
+    case_path: str, settings: CheckSettings, robot_raw: bytes | RigFiles, robot_label: str
+) -> dict:
     """Check one case file; never raises for a bad or crashing case. -> plain dict.
+
+    robot_raw: a robot file's bytes (the case is a trajectory), or a rig's files (RigFiles;
+    the case is a scenario, checked by check_rig with RigFiles.rails).
 
     Keys: case_path, case_sha256, verdict ("pass" | "fail" | "error"), error, report
     (Report.as_dict() or None), excess_fractions (one per violation row), parameters (the
@@ -200,11 +221,16 @@ def check_case(case_path: str, settings: CheckSettings, robot_raw: bytes, robot_
         import_fast_reader()  # a worker reads many files: the faster reader repays its import
         out["case_sha256"] = file_sha256(case_path)
         out["parameters"] = read_case_parameters(case_path)
-        robot = _robot_for(robot_raw, robot_label)
-        report = check(robot, load_trajectory(case_path), settings)
+        model = _model_for(robot_raw, robot_label)
+        if isinstance(model, Rig):
+            report = check_rig(model, load_scenario(case_path), settings, robot_raw.rails)
+            fractions = [_rig_excess_fraction(model, v) for v in report.violations]
+        else:
+            report = check(model, load_trajectory(case_path), settings)
+            fractions = [_excess_fraction(model, v) for v in report.violations]
         out["report"] = report.as_dict()
         out["verdict"] = report.verdict.value
-        out["excess_fractions"] = [_excess_fraction(robot, v) for v in report.violations]
+        out["excess_fractions"] = fractions
     except ReachgateError as error:
         text = str(error)
         out["error"] = text if Path(case_path).name in text else f"{case_path}: {text}"
@@ -225,10 +251,10 @@ def _watch_parent(parent_pid: int) -> None:
     os._exit(1)  # the scan process is gone (kill -9): do not linger as an orphan
 
 
-def _local_worker_init(robot_raw: bytes, robot_label: str, parent_pid: int) -> None:
+def _local_worker_init(robot_raw: bytes | RigFiles, robot_label: str, parent_pid: int) -> None:
     signal.signal(signal.SIGINT, signal.SIG_IGN)  # Ctrl-C is the scan process's to handle
     threading.Thread(target=_watch_parent, args=(parent_pid,), daemon=True).start()
-    _robot_for(robot_raw, robot_label)
+    _model_for(robot_raw, robot_label)
 
 
 # -- engines: yield one result dict per case -----------------------------------------------
@@ -299,12 +325,12 @@ def _may_submit(todo: list, running: dict, window: int, broken: bool) -> bool:
 def _run_local(
     paths: list[str],
     settings: CheckSettings,
-    robot_raw: bytes,
+    robot_raw: bytes | RigFiles,
     label: str,
     workers: int,
     task: Callable[..., dict] = check_case,
 ) -> Iterator[dict]:
-    """Local worker processes (spawned fresh, the robot parsed once in each).
+    """Local worker processes (spawned fresh, the robot or rig built once in each).
 
     task: the per-case function (check_case; tests swap in one that kills its worker).
     """
@@ -375,14 +401,14 @@ def _cases_per_task(n_cases: int, threads: int) -> int:
 
 
 def check_cases(
-    case_paths: list[str], settings: CheckSettings, robot_raw: bytes, robot_label: str
+    case_paths: list[str], settings: CheckSettings, robot_raw: bytes | RigFiles, robot_label: str
 ) -> list[dict]:
     """check_case for several cases in one cluster task."""
     return [check_case(p, settings, robot_raw, robot_label) for p in case_paths]
 
 
 def _run_cluster(
-    paths: list[str], settings: CheckSettings, robot_raw: bytes, label: str, client
+    paths: list[str], settings: CheckSettings, robot_raw: bytes | RigFiles, label: str, client
 ) -> Iterator[dict]:
     """The workers of an existing Dask distributed scheduler (they must see the case paths).
 
@@ -451,19 +477,21 @@ def _run_cluster(
 # -- the parent side -----------------------------------------------------------------------
 
 
-def _validate_settings(robot: Robot, settings: CheckSettings) -> None:
-    """Refuse settings the robot cannot take (e.g. --rail-at off the rail) before any case."""
+def _validate_settings(rig: Rig, settings: CheckSettings, rails: RailChoice | None) -> None:
+    """Refuse settings a robot cannot take (e.g. --rail-at off the rail) before any case."""
     import numpy as np
 
-    rail_positions(
-        robot,
-        np.array([0.0, 1.0]),
-        np.zeros((2, 3)),
-        np.eye(4),
-        settings.rail,
-        settings.rail_at_m,
-        settings.rail_bandwidth_hz,
-    )
+    for placed in rig.robots:
+        own = settings if rig.alone else robot_settings(placed, settings, rails)
+        rail_positions(
+            placed.robot,
+            np.array([0.0, 1.0]),
+            np.zeros((2, 3)),
+            np.eye(4),
+            own.rail,
+            own.rail_at_m,
+            own.rail_bandwidth_hz,
+        )
 
 
 def _worst_margin(margins: dict) -> tuple[float | None, str | None, str | None]:
@@ -544,9 +572,16 @@ def scan(
     cluster: str | None = None,
     fresh: bool = False,
     progress: Callable[[ScanProgress], None] | None = None,
+    rails: RailChoice | None = None,
 ) -> ScanSummary:
-    """Check every case with the same robot and settings; results go to the store.
+    """Check every case with the same robot (or rig) and settings; results go to the store.
 
+    robot_path: a robot file (cases are trajectories) or a rig file (cases are scenarios,
+    each checked as check_rig does: every robot's checks and clearance). rails: one rail
+    choice for every robot with a rail (a robot alone: instead of settings' rail fields);
+    None: a rig's robots take the rig file's. The store knows the robot or rig by the
+    sha256 of its file, or of the rig file and every robot file it names (model_files), so
+    a change to any of them checks the cases again.
     case_paths: files, folders (every *.csv inside) and glob patterns. store_path: default
     reachgate_scan.sqlite in the cases' common folder. workers: local processes (default
     os.cpu_count()); cluster: address of a running Dask scheduler instead. fresh: re-check
@@ -560,17 +595,20 @@ def scan(
     cases = discover_cases(case_paths)
     store_file = Path(store_path) if store_path is not None else default_store_path(cases)
     robot_file = Path(robot_path)
-    robot = load_robot(robot_file)
-    robot_raw = robot_file.read_bytes()
-    robot_sha = hashlib.sha256(robot_raw).hexdigest()
-    _validate_settings(robot, settings)
+    robot_raw, rig = read_model_files(robot_file, rails)
+    if rig.alone and rails is not None:
+        settings = replace(
+            settings, rail=rails.policy, rail_at_m=rails.at_m, rail_bandwidth_hz=rails.bandwidth_hz
+        )
+    robot_sha = fingerprint(robot_raw)
+    _validate_settings(rig, settings, rails)
     if workers is not None and workers < 1:
         raise ReachgateError(f"--workers: must be at least 1, got {workers}")
     if workers is not None and cluster:
         raise ReachgateError("--workers and --cluster: give one (the cluster has its own workers)")
-    settings_json = json.dumps(settings.as_dict(), sort_keys=True)
+    settings_json = json.dumps(scan_settings(rig, settings, rails), sort_keys=True)
     common = {
-        "robot_name": robot.name,
+        "robot_name": rig.name,
         "robot_sha256": robot_sha,
         "settings_json": settings_json,
     }

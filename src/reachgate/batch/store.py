@@ -26,6 +26,7 @@ from dataclasses import dataclass, field
 from enum import Enum
 from pathlib import Path
 
+from reachgate.batch.model_files import file_fingerprint
 from reachgate.checking.intervals import Check, Severity, Violation
 from reachgate.errors import ReachgateError
 
@@ -698,16 +699,14 @@ class ScanLock:
 def load_summary(store_path: str | Path, *, robot_path: str | Path | None = None) -> ScanSummary:
     """Every case in a results store, ranked worst first, without checking anything.
 
-    robot_path: keep only the cases checked with this robot file's content (by sha256).
+    robot_path: keep only the cases checked with this robot file's content (by sha256), or
+    this rig's (the fingerprint of the rig file and every robot file it names).
     """
     path = Path(store_path)
     with Store(path, create=False) as store:
         cases = store.results()
     if robot_path is not None:
-        try:
-            sha = hashlib.sha256(Path(robot_path).read_bytes()).hexdigest()
-        except OSError as error:
-            raise ReachgateError(f"{robot_path}: cannot read ({error.strerror})") from None
+        sha = file_fingerprint(robot_path)
         cases = tuple(c for c in cases if c.robot_sha256 == sha)
         if not cases:
             raise ReachgateError(

@@ -76,18 +76,13 @@ class RigReport:
         return self.verdict is Verdict.PASS
 
     def as_dict(self) -> dict:
-        settings = self.settings.as_dict()
-        for key in ("rail", "rail_at_m", "rail_bandwidth_hz"):
-            settings.pop(key)
-        settings["robots"] = {
-            name: {
-                "robot": self.robots[name].robot,
-                "rail": s.rail.value if "rail" in self.robots[name].axis_names else None,
-                "rail_at_m": s.rail_at_m,
-                "rail_bandwidth_hz": s.rail_bandwidth_hz,
-            }
-            for name, s in self.robot_settings.items()
-        }
+        settings = rig_settings_dict(
+            self.settings,
+            {
+                name: (self.robots[name].robot, "rail" in self.robots[name].axis_names, s)
+                for name, s in self.robot_settings.items()
+            },
+        )
         return {
             "tool_version": self.tool_version,
             "robot": self.robot,
@@ -107,6 +102,27 @@ class RigReport:
 
     def to_json(self, indent: int | None = 2) -> str:
         return json.dumps(self.as_dict(), indent=indent, allow_nan=False)
+
+
+def rig_settings_dict(
+    settings: CheckSettings, robots: dict[str, tuple[str, bool, CheckSettings]]
+) -> dict:
+    """The settings of a rig check as JSON: settings.as_dict() with the rail keys given per
+    robot under "robots" (robots: rig name -> (robot's own name, has a rail, its settings);
+    rail None for a robot without one)."""
+    out = settings.as_dict()
+    for key in ("rail", "rail_at_m", "rail_bandwidth_hz"):
+        out.pop(key)
+    out["robots"] = {
+        name: {
+            "robot": robot,
+            "rail": s.rail.value if has_rail else None,
+            "rail_at_m": s.rail_at_m,
+            "rail_bandwidth_hz": s.rail_bandwidth_hz,
+        }
+        for name, (robot, has_rail, s) in robots.items()
+    }
+    return out
 
 
 def _finite_or_none(margins: dict) -> dict:

@@ -23,6 +23,7 @@ from reachgate.model.robot import (
     _pose,
     _Table,
     load_robot,
+    parse_toml_bytes,
     read_toml,
     robot_from_dict,
     shape_name,
@@ -145,8 +146,15 @@ def load_rig(path: str | Path) -> Rig:
     return rig_from_dict(data, source=str(path), folder=path.parent)
 
 
-def rig_from_dict(data: dict[str, Any], source: str = "<dict>", folder: Path = Path()) -> Rig:
-    """Validate a parsed rig file; robot files are read relative to `folder`."""
+def rig_from_dict(
+    data: dict[str, Any],
+    source: str = "<dict>",
+    folder: Path = Path(),
+    robot_files: dict[str, bytes] | None = None,
+) -> Rig:
+    """Validate a parsed rig file; robot files are read relative to `folder`, or taken from
+    robot_files (path as the rig names it, relative to `folder` -> the file's bytes: how a
+    scan's workers rebuild the rig its parent read)."""
     top = _Table(data, source, "")
     name = top.text("name", default=Path(source).stem)
     listed = top.get("robots", default=None)
@@ -155,7 +163,7 @@ def rig_from_dict(data: dict[str, Any], source: str = "<dict>", folder: Path = P
     robots: list[RigRobot] = []
     for i, item in enumerate(listed):
         table = _Table(item, source, f"robots[{i + 1}]")
-        placed = _rig_robot(table, folder)
+        placed = _rig_robot(table, folder, robot_files)
         if placed.name in (r.name for r in robots):
             raise table.fail("name", f"{placed.name!r} names two robots")
         robots.append(placed)
@@ -180,14 +188,20 @@ def rig_from_dict(data: dict[str, Any], source: str = "<dict>", folder: Path = P
     return rig
 
 
-def _rig_robot(table: _Table, folder: Path) -> RigRobot:
+def _rig_robot(table: _Table, folder: Path, robot_files: dict[str, bytes] | None) -> RigRobot:
     name = shape_name(table)
     file = table.text("file")
     robot_path = folder / file
-    if not robot_path.is_file():
+    if robot_files is not None:
+        if str(robot_path) not in robot_files:
+            raise table.fail("file", f"{file!r}: not among the robot files given ({robot_path})")
+        data = parse_toml_bytes(robot_files[str(robot_path)], str(robot_path), "robot")
+        robot = robot_from_dict(data, source=str(robot_path))
+    elif not robot_path.is_file():
         what = "is a folder" if robot_path.is_dir() else "no such file"
         raise table.fail("file", f"{file!r}: {what} ({robot_path}; relative to the rig file)")
-    robot = load_robot(robot_path)
+    else:
+        robot = load_robot(robot_path)
     body = table.text("body")
     if not body.strip():
         raise table.fail("body", "must name a scenario body, got an empty name")

@@ -676,6 +676,12 @@ def read_toml(path: str | Path, what: str) -> dict[str, Any]:
         raise ReachgateError(f"{label}: is a folder, not a {what} file") from None
     except OSError as error:
         raise ReachgateError(f"{label}: cannot read ({error.strerror})") from None
+    return parse_toml_bytes(raw, label, what)
+
+
+def parse_toml_bytes(raw: bytes, label: str, what: str) -> dict[str, Any]:
+    """The parsed TOML of a description file's bytes (read_toml's rules and messages; label
+    names the file). Raises ReachgateError."""
     if not raw.strip():
         raise ReachgateError(f"{label}: the file is empty")
     if b"\x00" in raw:

@@ -882,10 +882,19 @@ def load_scenario(path: str | Path) -> Scenario:
     Plain columns (`x_m`, `qw`, ...) give one body, loaded exactly as load_trajectory does, under
     PLAIN_BODY. Columns prefixed with a body name and a dot (`drone.x_m`, `pad.qw`) give one
     body each, with the single-body column choices and rules; other columns are kept out and
-    named in ignored_columns. Raises ReachgateError naming file, line and column.
+    named in ignored_columns. A Parquet or Arrow IPC file gives one body (plain columns), as
+    load_trajectory reads it. Raises ReachgateError naming file, line and column.
     """
     path = Path(path)
     label = str(path)
+    if is_columnar(path):  # Parquet or Arrow IPC: one body, plain columns
+        trajectory = load_trajectory(path)
+        return Scenario(
+            t_s=trajectory.t_s,
+            bodies={PLAIN_BODY: trajectory},
+            name=trajectory.name,
+            ignored_columns=trajectory.ignored_columns,
+        )
     header_line, names = _read_header(path, label)
     try:
         has_bodies = bool(_body_columns(names))
@@ -932,12 +941,16 @@ def write_scenario(path: str | Path, scenario: Scenario, comments: tuple[str, ..
     """Write a scenario as CSV: '# ' comment lines, then t_s and each body's
     BODY.x_m,...,BODY.qz (plain columns for a PLAIN_BODY scenario); shortest round-trip decimals.
     """
+    _write_csv(Path(path), scenario_csv_chunks(scenario, comments))
+
+
+def scenario_csv_chunks(scenario: Scenario, comments: tuple[str, ...] = ()) -> Iterator[str]:
+    """The text write_scenario writes, in pieces of bounded size (for writers of their own)."""
     if scenario.is_plain:
-        write_trajectory(path, scenario.bodies[PLAIN_BODY], comments)
-        return
+        return trajectory_csv_chunks(scenario.bodies[PLAIN_BODY], comments)
     header = [_TIME_COLUMN]
     parts = [scenario.t_s]
     for body, trajectory in scenario.bodies.items():
         header += [f"{body}{BODY_SEPARATOR}{c}" for c in WRITTEN_COLUMNS[1:]]
         parts += [trajectory.scenario_p_m, trajectory.scenario_q_wxyz]
-    _write_csv(Path(path), _csv_chunks(tuple(header), np.column_stack(parts), comments))
+    return _csv_chunks(tuple(header), np.column_stack(parts), comments)

@@ -42,7 +42,7 @@ from scipy.linalg import solve_continuous_lyapunov
 from scipy.signal import ss2tf
 
 from reachgate.errors import ReachgateError
-from reachgate.model.trajectory import Trajectory
+from reachgate.model.trajectory import PLAIN_BODY, Scenario, Trajectory
 from reachgate.motion.dryden import (
     DEFAULT_AIRSPEED_M_S,
     DEFAULT_ALTITUDE_M,
@@ -282,11 +282,16 @@ def _is_whole(value) -> bool:
 @dataclass(frozen=True)
 class DisturbanceCase:
     """One disturbance case: the perturbed path, the seed of its own random stream, and the
-    settings that made it (``settings`` dict; ``header_lines`` renders them for the file)."""
+    settings that made it (``settings`` dict; ``header_lines`` renders them for the file).
+
+    trajectory: the moved body's path; scenario: for a nominal of several bodies, the whole
+    case (the moved body and every other body as in the nominal), else None.
+    """
 
     trajectory: Trajectory
     case_seed: int
     settings: dict
+    scenario: Scenario | None = None
 
     @property
     def header_lines(self) -> tuple[str, ...]:
@@ -298,8 +303,36 @@ def make_disturbance_cases(nominal: Trajectory, count: int, seed: int, **options
     return list(iter_disturbance_cases(nominal, count, seed, **options))
 
 
+def moved_body(nominal: Trajectory | Scenario, body: str | None) -> tuple[Trajectory, str | None]:
+    """The path the gusts move and the body's name (None for a one-body nominal).
+
+    A scenario of several bodies needs `body` (one of its bodies); a one-body nominal (a
+    trajectory, or a scenario of plain columns) takes none. Raises ReachgateError saying which.
+    """
+    if isinstance(nominal, Scenario) and not nominal.is_plain:
+        names = ", ".join(nominal.bodies)
+        if body is None:
+            if len(nominal.bodies) == 1:
+                return next(iter(nominal.bodies.values())), next(iter(nominal.bodies))
+            raise ReachgateError(
+                f"{nominal.name}: a scenario of several bodies ({names}); "
+                "name the body the gusts move with --body NAME"
+            )
+        if body not in nominal.bodies:
+            raise ReachgateError(f"--body {body}: {nominal.name} has no such body (it has {names})")
+        return nominal.bodies[body], body
+    if body is not None:
+        raise ReachgateError(
+            f"--body {body}: {nominal.name} has one body (plain columns, no body names); "
+            "leave out --body, or give a scenario of several bodies (drone.x_m, ...)"
+        )
+    if isinstance(nominal, Scenario):
+        return nominal.bodies[PLAIN_BODY], None
+    return nominal, None
+
+
 def iter_disturbance_cases(
-    nominal: Trajectory,
+    nominal: Trajectory | Scenario,
     count: int,
     seed: int,
     *,
@@ -310,9 +343,14 @@ def iter_disturbance_cases(
     washout_s: float = DEFAULT_WASHOUT_S,
     wingspan_m: float = DEFAULT_WINGSPAN_M,
     response_hz: float = DEFAULT_RESPONSE_HZ,
+    body: str | None = None,
 ) -> Iterator[DisturbanceCase]:
     """count disturbance cases of the nominal path, numbered 1..count, made one at a time
     (memory stays that of one case, whatever count is).
+
+    nominal: a trajectory, or a scenario; of several bodies, the gusts move `body` only and
+    every other body's poses are carried over unchanged (moved_body says what is refused).
+    The moved body draws exactly what a one-body nominal of its path draws with the same seed.
 
     Case i draws from Generator(PCG64(case_seed)) where case_seed comes from
     SeedSequence(seed, spawn_key=(i,)): cases are independent, and case i is the same whatever
@@ -326,10 +364,11 @@ def iter_disturbance_cases(
         raise ReachgateError(f"seed must be a whole number >= 0, got {seed!r}")
     require_positive("washout", washout_s, "s")
     require_positive("response_hz", response_hz, "Hz")
+    path, body = moved_body(nominal, body)
     s = dryden_settings(
         altitude_m, airspeed_m_s, intensity=intensity, sigma_m_s=sigma_m_s, wingspan_m=wingspan_m
     )
-    prepared = _Prepared(nominal.t_s, s, washout_s, response_hz)
+    prepared = _Prepared(path.t_s, s, washout_s, response_hz)
     common = {
         "made_by": f"reachgate {__version__} perturb",
         "model": (
@@ -346,22 +385,28 @@ def iter_disturbance_cases(
         "response_hz": float(response_hz), "fade_in_s": FADE_IN_S, "fade_out_s": FADE_IN_S,
         "gust_axes": "u v w along scenario x y z; p q r about scenario x y z",
     }  # fmt: skip
-    return _cases(nominal, count, seed, prepared, common)
+    if body is not None:  # only then: one-body case files keep their bytes
+        common["body"] = body
+    return _cases(nominal, path, body, count, seed, prepared, common)
 
 
-def _cases(nominal, count, seed, prepared, common) -> Iterator[DisturbanceCase]:
+def _cases(nominal, path, body, count, seed, prepared, common) -> Iterator[DisturbanceCase]:
     """The cases themselves, one at a time (the options were checked by the caller)."""
-    q_nominal = nominal.scenario_q_wxyz
-    fade = fade_in_out(nominal.t_s)[:, None]
+    q_nominal = path.scenario_q_wxyz
+    fade = fade_in_out(path.t_s)[:, None]
     for index in range(1, count + 1):
         state = np.random.SeedSequence(seed, spawn_key=(index,)).generate_state(2, np.uint32)
         case_seed = int(state[0]) << 32 | int(state[1])
         response = prepared.draw(np.random.Generator(np.random.PCG64(case_seed)))
         trajectory = Trajectory.from_arrays(
-            nominal.t_s,
-            nominal.scenario_p_m + fade * response.displacement_m,
+            path.t_s,
+            path.scenario_p_m + fade * response.displacement_m,
             _quat_multiply(_rotvec_to_quat(fade * response.angle_rad), q_nominal),
             name=f"{nominal.name} case {index}",
         )
+        scenario = None
+        if body is not None:
+            bodies = {**nominal.bodies, body: trajectory}
+            scenario = Scenario(path.t_s, bodies, name=f"{nominal.name} case {index}")
         settings = {**common, "case": index, "case_seed": case_seed}
-        yield DisturbanceCase(trajectory, case_seed, settings)
+        yield DisturbanceCase(trajectory, case_seed, settings, scenario)

@@ -13,7 +13,7 @@ from collections.abc import Iterable
 from pathlib import Path
 
 from reachgate.errors import ReachgateError
-from reachgate.model.trajectory import trajectory_csv_chunks
+from reachgate.model.trajectory import scenario_csv_chunks, trajectory_csv_chunks
 from reachgate.motion.case_parameters import read_case_parameters
 from reachgate.motion.disturb import DisturbanceCase
 from reachgate.render.files import same_file, write_chunks
@@ -99,5 +99,9 @@ def write_case_files(
     targets = []
     for case in itertools.chain([first_case], cases):
         targets.append(out_dir / f"{stem}_{case.settings['case']:0{CASE_NUMBER_DIGITS}d}.csv")
-        write_chunks(targets[-1], trajectory_csv_chunks(case.trajectory, case.header_lines))
+        if case.scenario is None:
+            chunks = trajectory_csv_chunks(case.trajectory, case.header_lines)
+        else:
+            chunks = scenario_csv_chunks(case.scenario, case.header_lines)
+        write_chunks(targets[-1], chunks)
     return targets

@@ -103,7 +103,15 @@ def margin_histograms(margins_by_check: dict[str, np.ndarray]) -> bytes:
 
 
 def case_picture(report, robot) -> bytes:
-    """The `check --plot` picture of one case, as PNG bytes."""
+    """The `check --plot` picture of one case, as PNG bytes; for a rig (robot a Rig), the
+    clearance picture with the rig's views (each robot's axis panels are left out)."""
+    from reachgate.model.rig import Rig
+
     with tempfile.TemporaryDirectory(prefix="reachgate-") as folder:
-        path = plot_report(report, robot, Path(folder) / "case.png")
+        if isinstance(robot, Rig):
+            from reachgate.render.rig_picture import plot_rig_clearance
+
+            path = plot_rig_clearance(report, robot, Path(folder) / "case.png")
+        else:
+            path = plot_report(report, robot, Path(folder) / "case.png")
         return path.read_bytes()

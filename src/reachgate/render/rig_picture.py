@@ -216,6 +216,16 @@ def plot_rig_report(report: RigReport, rig: Rig, path: str | Path) -> list[Path]
     near_m (against min_m and near_m, violation rows hatched) and the rig from above and from
     the side at the moment of least clearance; FILE-ROBOT.png with each robot's axis panels.
     Returns the paths written."""
+    path = plot_rig_clearance(report, rig, path)
+    written = [path]
+    for placed in rig.robots:
+        own = robot_picture_path(path, placed.name)
+        written.append(plot_report(report.robots[placed.name], placed.robot, own))
+    return written
+
+
+def plot_rig_clearance(report: RigReport, rig: Rig, path: str | Path) -> Path:
+    """FILE.png of plot_rig_report alone: the clearance panel and the rig's two views."""
     path = _require_png(Path(path))
     figure = _new_figure(RIG_REPORT_SIZE_IN)
     grid = figure.add_gridspec(2, 2, height_ratios=(1.0, 1.3))
@@ -255,8 +265,4 @@ def plot_rig_report(report: RigReport, rig: Rig, path: str | Path) -> list[Path]
         moment += f", least clearance {pair}: {distance * 1000.0:.1f} mm"
     figure.suptitle(f"rig {report.robot} / {report.trajectory}: {verdict}; views {moment}")
     _save(figure, path)
-    written = [path]
-    for placed in rig.robots:
-        own = robot_picture_path(path, placed.name)
-        written.append(plot_report(report.robots[placed.name], placed.robot, own))
-    return written
+    return path

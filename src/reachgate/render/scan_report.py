@@ -20,14 +20,26 @@ def _row_text(v, time_s: float | None) -> str:
     return "-" if v is None else f"{v.check.value} {v.axis} {time_s:.2f} s"
 
 
-def settings_text(settings: dict) -> str:
-    """CheckSettings.as_dict() as one short line, in the check options' words and units."""
-    place = ",".join(f"{v:g}" for v in [*settings["place_xyz_m"], *settings["place_rpy_deg"]])
+def _rail_text(settings: dict) -> str:
     rail = settings["rail"]
     if rail == "follow":
         rail += f" {settings['rail_bandwidth_hz']:g} Hz"
     elif settings["rail_at_m"] is not None:
         rail += f" at {settings['rail_at_m']:g} m"
+    return rail
+
+
+def settings_text(settings: dict) -> str:
+    """CheckSettings.as_dict() (or a rig's, with a rail per robot) as one short line, in the
+    check options' words and units."""
+    place = ",".join(f"{v:g}" for v in [*settings["place_xyz_m"], *settings["place_rpy_deg"]])
+    if "robots" in settings:  # a rig: each robot with a rail, and who chose it
+        rails = [f"{name} {_rail_text(r)}" for name, r in settings["robots"].items() if r["rail"]]
+        rail = ", ".join(rails) or "none"
+        if rails and settings.get("rails_from"):
+            rail += f" (from the {settings['rails_from']})"
+    else:
+        rail = _rail_text(settings)
     lag = "off" if settings["lag_s"] is None else f"{settings['lag_s']:g} s"
     tol = f"{1000 * settings['lag_tol_m']:g} mm"
     if settings.get("lag_tol_rad") is not None:
