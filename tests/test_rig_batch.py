@@ -238,6 +238,11 @@ def test_scan_rig_tables_show_clearance_and_robot_axes(rig_scan):
     assert "clearance" in table and "rail carrier follow 0.5 Hz (from the rig file)" in table
     page = run("scan", "--report", "--store", store, "--format", "html", "--pictures", 1)
     assert page.exit_code == 1 and "carrier.rotor guard/floor" in page.output
+    pedestal = rig_scan["rig"].parent.parent / "robots" / "demo_pedestal_arm.toml"
+    pedestal_sha = hashlib.sha256(pedestal.read_bytes()).hexdigest()
+    assert f'demo landing rig: robot file of table</td><td class="mono">{pedestal_sha}' in (
+        page.output
+    )
     assert "data:image/png;base64," in page.output  # the rechecked rig case's picture
 
 
@@ -292,4 +297,4 @@ def test_a_robot_file_alone_travels_and_is_known_as_before():
     assert rig.alone and source == DEMO_ROBOT.read_bytes()
     assert fingerprint(source) == hashlib.sha256(DEMO_ROBOT.read_bytes()).hexdigest()
     settings = CheckSettings(lag_s=0.02)
-    assert scan_settings(rig, settings, None) == settings.as_dict()
+    assert scan_settings(rig, settings, None, source) == settings.as_dict()

@@ -96,10 +96,13 @@ def file_fingerprint(path: str | Path) -> str:
     return _sha256(raw)
 
 
-def scan_settings(rig: Rig, settings: CheckSettings, rails: RailChoice | None) -> dict:
+def scan_settings(
+    rig: Rig, settings: CheckSettings, rails: RailChoice | None, source: bytes | RigFiles
+) -> dict:
     """The settings a store keeps with each case: CheckSettings.as_dict() for a robot alone;
-    for a rig, each robot's resolved rail (rig_settings_dict) and where it came from."""
-    if rig.alone:
+    for a rig, each robot's resolved rail (rig_settings_dict), where it came from, and the
+    sha256 of the rig file and of each robot's file (`files_sha256`: the fingerprint's parts)."""
+    if rig.alone or not isinstance(source, RigFiles):
         return settings.as_dict()
     used = {
         p.name: (p.robot.name, p.robot.rail is not None, robot_settings(p, settings, rails))
@@ -107,4 +110,10 @@ def scan_settings(rig: Rig, settings: CheckSettings, rails: RailChoice | None) -
     }
     out = rig_settings_dict(settings, used)
     out["rails_from"] = "rig file" if rails is None else "command line"
+    out["files_sha256"] = {
+        "rig": _sha256(source.raw),
+        "robots": {
+            p.name: _sha256(raw) for p, (_, raw) in zip(rig.robots, source.robots, strict=True)
+        },
+    }
     return out

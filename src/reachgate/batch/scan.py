@@ -606,7 +606,7 @@ def scan(
         raise ReachgateError(f"--workers: must be at least 1, got {workers}")
     if workers is not None and cluster:
         raise ReachgateError("--workers and --cluster: give one (the cluster has its own workers)")
-    settings_json = json.dumps(scan_settings(rig, settings, rails), sort_keys=True)
+    settings_json = json.dumps(scan_settings(rig, settings, rails, robot_raw), sort_keys=True)
     common = {
         "robot_name": rig.name,
         "robot_sha256": robot_sha,

@@ -95,6 +95,21 @@ def _parameter_note(digest: NightDigest) -> str:
     return "Case parameters: " + "; ".join(parts) + "."
 
 
+def _file_hashes(summary: ScanSummary) -> list[tuple[str, str]]:
+    """(what, sha256) of every robot, and of every rig with its rig file and robot files."""
+    rows = set()
+    for c in summary.cases:
+        name = c.robot_name or "?"
+        files = c.settings.get("files_sha256")
+        if files is None:
+            rows.add((name, c.robot_sha256))
+            continue
+        rows.add((f"{name} (rig: over the files below)", c.robot_sha256))
+        rows.add((f"{name}: rig file", files["rig"]))
+        rows.update((f"{name}: robot file of {r}", sha) for r, sha in files["robots"].items())
+    return sorted(rows)
+
+
 def render_night_page(
     summary: ScanSummary,
     *,
@@ -112,7 +127,7 @@ def render_night_page(
 
     digest = night_digest(summary)
     rows, starred = ranked_rows(summary.cases)
-    robots = sorted({(c.robot_name or "?", c.robot_sha256) for c in summary.cases})
+    robots = _file_hashes(summary)
     setups = {json.dumps(c.settings, sort_keys=True): c.settings for c in summary.cases}
     tally = digest.tally
     context = {
