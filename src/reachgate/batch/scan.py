@@ -36,6 +36,7 @@ from reachgate.batch.store import (
     batch_counts,
     load_summary,
 )
+from reachgate.batch.worker_process import steady_worker
 from reachgate.checking.intervals import Check, Severity
 from reachgate.checking.pipeline import CheckSettings, check
 from reachgate.checking.rail import rail_positions
@@ -403,8 +404,10 @@ def _cases_per_task(n_cases: int, threads: int) -> int:
 def check_cases(
     case_paths: list[str], settings: CheckSettings, robot_raw: bytes | RigFiles, robot_label: str
 ) -> list[dict]:
-    """check_case for several cases in one cluster task."""
-    return [check_case(p, settings, robot_raw, robot_label) for p in case_paths]
+    """check_case for several cases in one cluster task, in a worker process set up for it
+    meanwhile (worker_process.steady_worker: heap reuse, one BLAS thread)."""
+    with steady_worker():
+        return [check_case(p, settings, robot_raw, robot_label) for p in case_paths]
 
 
 def _run_cluster(

@@ -22,6 +22,7 @@ from reachgate.batch.scan import (
     _single_threaded_children,
     _watch_parent,
 )
+from reachgate.batch.worker_process import steady_worker
 from reachgate.checking.pipeline import CheckSettings, check
 from reachgate.errors import ReachgateError
 from reachgate.model.robot import Robot
@@ -105,7 +106,8 @@ def _run_cluster_chunk(tasks: Sequence[Task], robot, cases, labels, token: int) 
     held = _CLUSTER_CASES.get(token)
     if held is None:
         held = _CLUSTER_CASES[token] = _Cases(robot, cases, labels)
-    return held.run_all(tasks)
+    with steady_worker():  # heap reuse and one BLAS thread, as for scan's cluster tasks
+        return held.run_all(tasks)
 
 
 def _chunks(tasks: list, parts: int) -> list[list]:
