@@ -32,9 +32,12 @@ def demo_cases() -> Path:
     return DEMO_CASES
 
 
-def offset_wrist_arm(j1_deg: float = 180.0, j4_deg: float = 350.0) -> reachgate.Robot:
+def offset_wrist_arm(
+    j1_deg: float = 180.0, j4_deg: float = 350.0, a4_m: float = 0.04, d5_m: float = 0.06
+) -> reachgate.Robot:
     """The demo arm's geometry with its wrist axes no longer meeting: a4 = 0.04 m, d5 = 0.06 m
-    (no closed form: numeric IK). j1_deg, j4_deg: the symmetric ranges of joints 1 and 4."""
+    (no closed form: numeric IK). j1_deg, j4_deg: the symmetric ranges of joints 1 and 4.
+    a4_m = d5_m = 0 gives the spherical wrist back (closed form)."""
 
     def joint(name, a, alpha, d, offset=0.0, lo=-180.0, hi=180.0, home=0.0):
         limits = dict(range_deg=[lo, hi], vmax_deg_s=150.0, amax_deg_s2=500.0, home_deg=home)
@@ -44,8 +47,8 @@ def offset_wrist_arm(j1_deg: float = 180.0, j4_deg: float = 350.0) -> reachgate.
         joint("j1", 0.30, -90.0, 0.68, lo=-j1_deg, hi=j1_deg),
         joint("j2", 1.05, 0.0, 0.0, offset=-90.0, lo=-140, hi=20, home=-40),
         joint("j3", 0.20, -90.0, 0.0, lo=-120, hi=160, home=40),
-        joint("j4", 0.04, 90.0, 1.10, lo=-j4_deg, hi=j4_deg),
-        joint("j5", 0.0, -90.0, 0.06, lo=-125, hi=125, home=60),
+        joint("j4", a4_m, 90.0, 1.10, lo=-j4_deg, hi=j4_deg),
+        joint("j5", 0.0, -90.0, d5_m, lo=-125, hi=125, home=60),
         joint("j6", 0.0, 0.0, 0.22, lo=-360, hi=360),
     ]
     return robot_from_dict(

@@ -69,7 +69,9 @@ def test_json_report_has_the_design_keys():
         "worst",
         "limit",
         "unit",
+        "fitting_branches",  # ours, beside DESIGN §6's keys: null on a speed row
     }
+    assert row["fitting_branches"] is None
     assert set(report["margins"]["j1"]) >= {"position", "speed", "accel"}
 
 
@@ -89,7 +91,9 @@ def test_csv_format_and_out_file(tmp_path):
     )
     assert result.exit_code == 1
     lines = out.read_text().splitlines()
-    assert lines[0] == "check,axis,severity,start_s,end_s,worst_s,worst,limit,unit"
+    assert lines[0] == (
+        "check,axis,severity,start_s,end_s,worst_s,worst,limit,unit,fitting_branches"
+    )
     assert len(lines) > 1
 
 

@@ -45,6 +45,7 @@ def test_flipped_wrist_fits_where_joint_4_winds_past_its_range():
     branch = [r for r in rows if r.check is Check.BRANCH]
     position = [r for r in rows if r.check is Check.POSITION and r.axis == "j4"]
     assert len(branch) == 1 and len(position) == 1
+    assert branch[0].axis == "j4" and branch[0].fitting_branches is None  # found, not named
     assert branch[0].start_s == position[0].start_s == path.t_s[beyond][0]
 
     chain = robot.chain

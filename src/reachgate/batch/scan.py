@@ -555,6 +555,7 @@ def _store_row(result: dict, name: str, common: dict) -> tuple[dict, list[tuple]
             v["limit"],
             v["unit"],
             f,
+            None if v.get("fitting_branches") is None else json.dumps(v["fitting_branches"]),
         )
         for v, f in zip(violations, fractions, strict=True)
     ]

@@ -43,7 +43,11 @@ BUSY_TIMEOUT_S = 30.0
 #: written before them opens as it is (the rows read None there) and gains the column when
 #: opened for writing. Programs that predate a column ignore it (checksums included: see
 #: row_checksum).
-_ADDED_COLUMNS = {"cases": {"parameters_json": "TEXT"}}
+_ADDED_COLUMNS = {
+    "cases": {"parameters_json": "TEXT"},
+    # a row's fitting_branches as a JSON list (null: not judged, as in the report)
+    "violations": {"fitting_branches_json": "TEXT"},
+}
 #: Columns renamed in version 3, old name -> new name (worst_margin_limit held the name of a
 #: check, not a limit). A row checksum covers values by position, not by name, so rows sealed
 #: under the old name keep their checksums.
@@ -104,6 +108,7 @@ CREATE TABLE IF NOT EXISTS violations (
     limit_value REAL NOT NULL,
     unit TEXT NOT NULL,
     excess_fraction REAL,
+    fitting_branches_json TEXT,
     PRIMARY KEY (case_id, seq)
 );
 """
@@ -285,6 +290,15 @@ _VIOLATION_COLUMNS = (
 )  # fmt: skip
 
 
+def _violation_values(row) -> tuple:
+    """A stored violation row's checksummed values: _VIOLATION_COLUMNS, then [name, value]
+    of each column of _ADDED_COLUMNS that holds a value (see row_checksum)."""
+    added = tuple(
+        [c, row[c]] for c in _ADDED_COLUMNS["violations"] if c in row.keys() and row[c] is not None
+    )
+    return tuple(row[c] for c in _VIOLATION_COLUMNS) + added
+
+
 def row_checksum(values: dict, violations: Iterable[tuple]) -> str:
     """sha256 of a case row's values (_CHECKED_COLUMNS) and its violation rows, in order.
 
@@ -315,11 +329,14 @@ def _stored_checksum(db: sqlite3.Connection, case_id: int) -> str:
     """row_checksum of one case as it reads back from the store."""
     cursor = db.execute("SELECT * FROM cases WHERE case_id = ?", (case_id,))
     values = _current_names((d[0] for d in cursor.description), cursor.fetchone())
-    children = db.execute(
-        f"SELECT {', '.join(_VIOLATION_COLUMNS)} FROM violations WHERE case_id = ? ORDER BY seq",
-        (case_id,),
-    ).fetchall()
-    return row_checksum(values, children)
+    factory, db.row_factory = db.row_factory, sqlite3.Row
+    try:
+        children = db.execute(
+            "SELECT * FROM violations WHERE case_id = ? ORDER BY seq", (case_id,)
+        ).fetchall()
+    finally:
+        db.row_factory = factory
+    return row_checksum(values, [_violation_values(v) for v in children])
 
 
 def _damaged(path: Path, detail: str) -> ReachgateError:
@@ -522,7 +539,7 @@ class Store:
             for _, row, kids in self._raw_rows():
                 stored = row.get("row_sha256")
                 if stored is not None or not self.read_only:  # v1 read-only: nothing to check
-                    tuples = [tuple(k[c] for c in _VIOLATION_COLUMNS) for k in kids]
+                    tuples = [_violation_values(k) for k in kids]
                     if stored != row_checksum(row, tuples):
                         raise _damaged(
                             self.path,
@@ -546,7 +563,8 @@ class Store:
         """Replace the case's row and its violation rows in one transaction. -> case_id.
 
         row: column -> value of table cases (without case_id); violations: tuples of
-        (check, axis, severity, start_s, end_s, worst_s, worst, limit, unit, excess_fraction).
+        (check, axis, severity, start_s, end_s, worst_s, worst, limit, unit, excess_fraction,
+        fitting_branches_json).
         The checksum is taken from the values as SQLite stored them (column types applied).
         """
         keys = ", ".join(row)
@@ -567,8 +585,8 @@ class Store:
             )
             db.executemany(
                 "INSERT INTO violations (case_id, seq, check_name, axis, severity, start_s, "
-                "end_s, worst_s, worst, limit_value, unit, excess_fraction) "
-                "VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
+                "end_s, worst_s, worst, limit_value, unit, excess_fraction, "
+                "fitting_branches_json) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
                 [(new_id, i, *v) for i, v in enumerate(violations)],
             )
             db.execute(
@@ -590,6 +608,12 @@ class Store:
         return tuple(sorted((_case(r, kids) for r, kids in rows), key=rank_key))
 
 
+def _fitting_branches(row: sqlite3.Row) -> tuple[str, ...] | None:
+    """A stored row's fitting_branches (None in a store written before the column)."""
+    text = row["fitting_branches_json"] if "fitting_branches_json" in row.keys() else None
+    return None if text is None else tuple(json.loads(text))
+
+
 def _case(row: dict, children: list[sqlite3.Row]) -> CaseResult:
     violations = tuple(
         Violation(
@@ -602,6 +626,7 @@ def _case(row: dict, children: list[sqlite3.Row]) -> CaseResult:
             worst=v["worst"],
             limit=v["limit_value"],
             unit=v["unit"],
+            fitting_branches=_fitting_branches(v),
         )
         for v in children
     )

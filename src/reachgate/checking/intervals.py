@@ -39,7 +39,14 @@ class Severity(Enum):
 
 @dataclass(frozen=True)
 class Violation:
-    """One interval of one check on one axis, SI units (the unit field names them)."""
+    """One interval of one check on one axis, SI units (the unit field names them).
+
+    fitting_branches: on `branch` rows and on `position` violation rows of an arm joint of a
+    closed-form arm, the other configuration branches ('shoulder -, elbow +, wrist +') that
+    reach the target and keep every arm joint in range at every sample of the row; () when
+    none does. None on every other row, and on general arms, whose other configurations a
+    search finds but cannot name (checking.branch_rows).
+    """
 
     check: Check
     axis: str
@@ -50,6 +57,7 @@ class Violation:
     worst: float
     limit: float
     unit: str
+    fitting_branches: tuple[str, ...] | None = None
 
     def as_dict(self) -> dict:
         """JSON-ready row (DESIGN §6 keys, in field order); enums by their report names."""

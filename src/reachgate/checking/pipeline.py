@@ -13,6 +13,7 @@ from enum import Enum
 
 import numpy as np
 
+from reachgate.checking.branch_rows import branch_rows, with_fitting_branches
 from reachgate.checking.derivatives import (
     WINDOW_SAMPLES,
     end_node_steps,
@@ -360,18 +361,8 @@ def _check_once(robot: Robot, trajectory: Trajectory, settings: CheckSettings) -
         limit_value=0.0,
         unit="m",
     )
-    if solution.other_branch_fits.any():
-        range_excess = np.max(np.maximum(q - robot.upper, robot.lower - q), axis=1)
-        rows += intervals(
-            t,
-            np.where(solution.other_branch_fits, 1.0 + range_excess, -1.0),
-            0.0,
-            check=Check.BRANCH,
-            axis="arm",
-            worst_value=range_excess,
-            limit_value=0.0,
-            unit="rad",
-        )
+    rows = with_fitting_branches(rows, robot, t, solution)
+    rows += branch_rows(robot, t, solution)
     if settings.lag_s is not None:
         rows += _lag_rows(trajectory, settings, thresholds.rate_margin_fraction)
 

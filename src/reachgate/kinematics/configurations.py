@@ -1,13 +1,15 @@
-"""Other configurations of general arms: where the kept one leaves a joint range, does
-another solution of the same pose stay inside every range?
+"""Other configurations: where the kept one leaves a joint range, does another solution of
+the same pose stay inside every range?
 
-The closed-form solver lists every branch of a spherical-wrist arm; a general arm has no
-such list, so seeds for the numeric solver stand in for it: the closed-form solutions of
-the nearest spherical-wrist arm (the same DH table with the wrist offsets a4, a5 and d5 set
-to zero) when the arm has that shape otherwise, and a fixed set of configurations spread
-over the joint ranges. A seed that converges to a configuration other than the kept one and
-inside every range counts. This is a search, not a proof: a configuration that no seed leads
-to is missed. It only ever adds `branch` rows next to the position rows that stand anyway.
+The closed-form solver lists every branch of a spherical-wrist arm, so branch_fits says
+which of the eight branches fit, sample by sample. A general arm has no such list, so seeds
+for the numeric solver stand in for it: the closed-form solutions of the nearest
+spherical-wrist arm (the same DH table with the wrist offsets a4, a5 and d5 set to zero)
+when the arm has that shape otherwise, and a fixed set of configurations spread over the
+joint ranges. A seed that converges to a configuration other than the kept one and inside
+every range counts. This is a search, not a proof: a configuration that no seed leads to is
+missed, and the one found has no name. It only ever adds `branch` rows next to the position
+rows that stand anyway.
 """
 
 from __future__ import annotations
@@ -16,7 +18,12 @@ import math
 
 import numpy as np
 
-from reachgate.kinematics.closed_form import ALL_BRANCHES, SphericalWristSolver, is_spherical_wrist
+from reachgate.kinematics.closed_form import (
+    ALL_BRANCHES,
+    Branch,
+    SphericalWristSolver,
+    is_spherical_wrist,
+)
 from reachgate.kinematics.numeric import refine
 from reachgate.model.robot import Chain
 
@@ -46,6 +53,35 @@ def fits_range(
     if revolute is not None:
         shifted = np.where(revolute, shifted, q)
     return ((shifted >= lower) & (shifted <= upper)).all(axis=1)
+
+
+def branch_fits(
+    solver: SphericalWristSolver,
+    rows: np.ndarray,
+    kept: Branch,
+    lower: np.ndarray,
+    upper: np.ndarray,
+) -> np.ndarray:
+    """(M,) uint8: bit k set where ALL_BRANCHES[k], another branch than the kept one, reaches
+    the target and keeps every joint inside its range (shifted by whole turns if need be).
+
+    rows: (>= 12, M) flange targets in the chain's base frame (see SphericalWristSolver.
+    solve_rows); lower, upper: (6,) joint ranges, rad.
+    """
+    offset = solver.chain.theta_offset_rad
+    bits = np.zeros(rows.shape[1], dtype=np.uint8)
+    for k, branch in enumerate(ALL_BRANCHES):
+        if branch != kept:
+            other = solver.solve_rows(rows, branch)
+            # a branch whose wrist centre lies outside its shell has no solution there
+            fits = (other.reach_excess_m == 0) & fits_range(other.theta - offset, lower, upper)
+            bits |= fits.astype(np.uint8) << k
+    return bits
+
+
+def branches_in(bits: int) -> tuple[Branch, ...]:
+    """The branches whose bits (as branch_fits sets them) are set, in ALL_BRANCHES order."""
+    return tuple(branch for k, branch in enumerate(ALL_BRANCHES) if bits >> k & 1)
 
 
 def _wrist_centred(chain: Chain) -> Chain | None:

@@ -15,12 +15,11 @@ import numpy as np
 
 from reachgate.kinematics.chain import IDENTITY_COLUMNS, compose_links
 from reachgate.kinematics.closed_form import (
-    ALL_BRANCHES,
     Branch,
     SphericalWristSolver,
     is_spherical_wrist,
 )
-from reachgate.kinematics.configurations import fits_range, other_configuration_fits
+from reachgate.kinematics.configurations import branch_fits, other_configuration_fits
 from reachgate.kinematics.numeric import solve_path_numeric
 from reachgate.model.robot import Robot
 from reachgate.model.trajectory import Trajectory
@@ -52,7 +51,11 @@ class PathSolution:
     position_error_m, orientation_error_rad: (N,) FK(q) residuals against the targets.
     other_branch_fits: (N,) True where the kept branch leaves a joint range but another
         branch of the closed-form solution (general arms: another configuration the search
-        of ik_configurations finds) stays inside every range.
+        of kinematics.configurations finds) stays inside every range.
+    fitting_branch_bits: (N,) uint8 for closed-form arms, None for general arms (whose
+        configurations the search does not name): bit k set where ALL_BRANCHES[k] stays
+        inside every range (kinematics.configurations.branch_fits; 0 where the kept branch
+        stays inside them all or the target is out of reach).
     measures: singularity measures by kind, each (N,): 'wrist', 'elbow' (rad),
         'shoulder' (m) for closed-form arms.
     """
@@ -65,6 +68,7 @@ class PathSolution:
     orientation_error_rad: np.ndarray
     other_branch_fits: np.ndarray
     measures: dict[str, np.ndarray] = field(default_factory=dict)
+    fitting_branch_bits: np.ndarray | None = None
 
 
 #: Rows of the target arrays (15, N) the solvers read, all in the chain's base frame:
@@ -201,6 +205,7 @@ def solve_trajectory(
     q_rows = np.empty((robot.n_axes, n))  # axis-major, as each chunk's q
     reach, position, orientation = np.empty(n), np.empty(n), np.empty(n)
     other_fits = np.empty(n, dtype=bool)
+    fit_bits = np.empty(n, dtype=np.uint8) if solver is not None else None
     measures: dict[str, np.ndarray] = {}
     solved, start_arm = None, None
     for first in range(0, n, chunk_samples):
@@ -218,6 +223,8 @@ def solve_trajectory(
         position[part] = solved.position_error_m
         orientation[part] = solved.orientation_error_rad
         other_fits[part] = solved.other_branch_fits
+        if fit_bits is not None:
+            fit_bits[part] = solved.fitting_branch_bits
         for kind, values in solved.measures.items():
             measures.setdefault(kind, np.empty(n))[part] = values
     return PathSolution(
@@ -229,6 +236,7 @@ def solve_trajectory(
         orientation_error_rad=orientation,
         other_branch_fits=other_fits,
         measures=measures,
+        fitting_branch_bits=fit_bits,
     )
 
 
@@ -297,12 +305,7 @@ def _solve_rows(
         kind, kept = SolverKind.CLOSED_FORM, branch
 
         def another_fits(outside: np.ndarray) -> np.ndarray:
-            fits = np.zeros(int(outside.sum()), dtype=bool)
-            for other in ALL_BRANCHES:
-                if other != branch:
-                    alt = solver.solve_rows(rows[:, outside], other).theta
-                    fits |= fits_range(alt - chain.theta_offset_rad, lower, upper)
-            return fits
+            return branch_fits(solver, rows[:, outside], branch, lower, upper)
     else:
         targets = rows_to_matrices(rows)
         numeric = solve_path_numeric(chain, targets, previous)
@@ -317,8 +320,12 @@ def _solve_rows(
     # where the kept solution leaves a range: does another configuration stay inside them all?
     outside = ~((q_arm >= lower) & (q_arm <= upper)).all(axis=1) & (reach == 0)
     other_fits = np.zeros(n_samples, dtype=bool)
+    fit_bits = np.zeros(n_samples, dtype=np.uint8) if closed_form is not None else None
     if outside.any():
-        other_fits[outside] = another_fits(outside)
+        found = another_fits(outside)
+        other_fits[outside] = found != 0
+        if fit_bits is not None:
+            fit_bits[outside] = found
 
     # axis-major storage: q[:, i] is contiguous, which the column-wise FK and checks read
     q_rows = np.empty((robot.n_axes, n_samples))
@@ -332,6 +339,9 @@ def _solve_rows(
     # An unsolved sample with no geometric excess still counts as out of reach, by its miss
     # (fmax: a NaN miss counts as the smallest one, not as none).
     reach = np.where(missed & (reach == 0), np.fmax(position_error, 1e-12), reach)
+    other_fits &= reach == 0  # no configuration is judged where the kept one misses the target
+    if fit_bits is not None:
+        fit_bits[reach > 0] = 0
     return PathSolution(
         q=q,
         solver=kind,
@@ -341,4 +351,5 @@ def _solve_rows(
         orientation_error_rad=orientation_error,
         other_branch_fits=other_fits,
         measures=measures,
+        fitting_branch_bits=fit_bits,
     )

@@ -252,7 +252,8 @@ def print_findings(console, report, max_rows: int, branch_texts: list[str]) -> N
     cautions of a report (one robot or a rig) onto a console."""
 
     def say(text: str, first: str = "") -> None:
-        console.print(wrap_text(text, console.width, first), soft_wrap=True)
+        wrapped = wrap_text(text, console.width, first).replace(_UNBROKEN, " ")
+        console.print(wrapped, soft_wrap=True)
 
     if report.violations:
         rows = plain_table()
@@ -333,30 +334,109 @@ def print_findings(console, report, max_rows: int, branch_texts: list[str]) -> N
         say(line, "  - ")
 
 
+#: Joined into a branch's name so that prose never breaks it across lines (textwrap breaks
+#: only at ASCII whitespace); print_findings turns it back into a plain space.
+_UNBROKEN = "\u00a0"
+
+
+def _branch_names(names: tuple[str, ...]) -> str:
+    """'The branch shoulder -, elbow +, wrist +' or 'Each of the branches a and b', each
+    name kept on one line."""
+    kept_whole = [name.replace(" ", _UNBROKEN) for name in names]
+    if len(kept_whole) == 1:
+        return f"The branch {kept_whole[0]}"
+    return f"Each of the branches {', '.join(kept_whole[:-1])} and {kept_whole[-1]}"
+
+
+def _overlaps(a, b) -> bool:
+    return a.start_s <= b.end_s and a.end_s >= b.start_s
+
+
 def branch_explanations(report: Report) -> list[str]:
-    """What each branch row means, in words: the joints the kept configuration takes out of
-    their ranges there (from the position rows over the same time) and the way out."""
-    kept = report.solution.branch.describe() if report.solution.branch else None
+    """In words, for each `branch` row: which joint the kept configuration takes out of its
+    range and by how much, and which other configuration keeps every joint in range over the
+    row (or that no single one does); for the arm joints that leave their range where no other
+    configuration keeps them all in range (position rows no branch row meets): that none does."""
+    solution = report.solution
+    kept = solution.branch.describe().replace(" ", _UNBROKEN) if solution.branch else None
     kept_text = f"the configuration kept from home ({kept})" if kept else "the kept configuration"
     positions = [
         v for v in report.violations
         if v.check is Check.POSITION and v.severity is Severity.VIOLATION
     ]  # fmt: skip
-    texts = []
-    for row in (v for v in report.violations if v.check is Check.BRANCH):
-        joints = sorted(
-            {p.axis for p in positions if p.start_s <= row.end_s and p.end_s >= row.start_s}
-        )
+    branches = [v for v in report.violations if v.check is Check.BRANCH]
+    texts = []  # (start_s, text), in time order at the end
+    for row in branches:
         beyond, unit = display(row.worst, row.unit)
+        others = sorted({p.axis for p in positions if _overlaps(p, row)} - {row.axis})
+        also = f"; {_listed(others)} also leave their ranges then" if others else ""
+        if row.fitting_branches:
+            way_out = (
+                f"{_branch_names(row.fitting_branches)} reaches every pose there with every "
+                "joint in range, but the arm cannot change configuration in mid-path: start "
+                "from a home on such a branch (and check the whole path again), or move the "
+                "placement."
+            )
+        elif row.fitting_branches is not None:
+            way_out = (
+                "At each sample another branch keeps every joint in range, but no single one "
+                "does over the whole stretch, so no other home avoids it: "
+                f"{_fixes_beyond_a_stretch(report)}."
+            )
+        else:
+            way_out = (
+                "A numeric search found another configuration inside every range at each "
+                "sample (general arms have no named branches, and the search does not tell "
+                "whether one configuration serves the whole stretch); the arm cannot change "
+                "configuration in mid-path: start from a home in another configuration (and "
+                "check the whole path again), or move the placement."
+            )
         texts.append(
-            f"from {row.start_s:.3f} s to {row.end_s:.3f} s {kept_text} takes "
-            f"{', '.join(joints) or 'a joint'} out of its range, up to {beyond} {unit} beyond "
-            f"it (the row's worst; limit 0: no excess allowed). Another configuration (other "
-            "shoulder, elbow or wrist sign) keeps every joint in range there, but the arm "
-            "cannot change configuration in mid-path: start from a home in that "
-            "configuration, or move the placement."
+            (
+                row.start_s,
+                f"from {row.start_s:.3f} s to {row.end_s:.3f} s {kept_text} takes {row.axis} "
+                f"up to {beyond} {unit} beyond its range (the row's worst; limit 0: no excess "
+                f"allowed){also}. {way_out}",
+            )
         )
-    return texts
+    # position rows of arm joints that no branch row meets: no other configuration fits there
+    arm = set(report.axis_names) - {"rail"}
+    alone: dict[str, list] = {}
+    for p in positions:
+        if p.axis in arm and not any(_overlaps(p, b) for b in branches):
+            alone.setdefault(p.axis, []).append(p)
+    searched = (
+        "none of the other seven branches of the closed-form solution reaches those poses with "
+        "every joint in range either: another home will not help"
+        if solution.fitting_branch_bits is not None
+        else "a numeric search found no other configuration inside every range there (a "
+        "search, not a proof: one it missed may exist)"
+    )
+    for axis, rows in alone.items():
+        beyond, unit = display(max(abs(p.worst - p.limit) for p in rows), rows[0].unit)
+        where = (
+            f"from {rows[0].start_s:.3f} s to {rows[0].end_s:.3f} s"
+            if len(rows) == 1
+            else f"in {len(rows)} stretches from {rows[0].start_s:.3f} s to {rows[-1].end_s:.3f} s"
+        )
+        texts.append(
+            (
+                rows[0].start_s,
+                f"{where} {kept_text} takes {axis} up to {beyond} {unit} beyond its range, and "
+                f"{searched}; {_fixes_beyond_a_stretch(report)}.",
+            )
+        )
+    return [text for _, text in sorted(texts, key=lambda item: item[0])]
+
+
+def _csv_field(value) -> str | float:
+    """A row's value as a CSV field: floats in full, fitting_branches joined by '; ' (the
+    word none for an empty list, an empty field for null)."""
+    if isinstance(value, float):
+        return repr(value)
+    if isinstance(value, tuple):
+        return "; ".join(value) or "none"
+    return "" if value is None else value
 
 
 def render_csv(report: Report) -> str:
@@ -366,7 +446,7 @@ def render_csv(report: Report) -> str:
     writer.writerow(CSV_COLUMNS)
     for v in report.violations:
         d = v.as_dict()
-        writer.writerow([repr(d[c]) if isinstance(d[c], float) else d[c] for c in CSV_COLUMNS])
+        writer.writerow([_csv_field(d[c]) for c in CSV_COLUMNS])
     return tidy(buffer.getvalue())
 
 

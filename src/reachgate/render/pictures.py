@@ -161,6 +161,21 @@ def _measures(robot: Robot, report: Report) -> tuple[dict[str, np.ndarray], bool
     return {k: np.where(unreachable, np.nan, v) for k, v in measures.items()}, relative
 
 
+def _path_label(check: Check, rows: list[Violation]) -> str:
+    """A hatch's legend label: the check's name; for `branch`, also the configuration that
+    would keep every joint in range (when one branch fits over every branch row)."""
+    if check is not Check.BRANCH:
+        return check.value
+    fitting = [r.fitting_branches for r in rows if r.check is Check.BRANCH]
+    if any(names is None for names in fitting):
+        return "branch (another configuration fits)"
+    common = [name for name in fitting[0] if all(name in names for names in fitting)]
+    if not common:
+        return "branch (no single other branch fits throughout)"
+    more = f" and {len(common) - 1} more" if len(common) > 1 else ""
+    return f"branch ({common[0]}{more} would fit)"
+
+
 def plot_report(report: Report, robot: Robot, path: str | Path) -> Path:
     """Write the check picture: every axis against its limits over time, and singularities.
 
@@ -250,7 +265,7 @@ def plot_report(report: Report, robot: Robot, path: str | Path) -> Path:
         Patch(facecolor="none", edgecolor="0.35", hatch=_HATCHES["near"], label="near"),
     ]
     handles += [
-        Patch(facecolor="none", edgecolor="0.35", hatch=h, label=c.value)
+        Patch(facecolor="none", edgecolor="0.35", hatch=h, label=_path_label(c, path_rows))
         for c, h in _PATH_HATCHES.items()
         if any(r.check is c for r in path_rows)
     ]
