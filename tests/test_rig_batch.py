@@ -298,3 +298,18 @@ def test_a_robot_file_alone_travels_and_is_known_as_before():
     assert fingerprint(source) == hashlib.sha256(DEMO_ROBOT.read_bytes()).hexdigest()
     settings = CheckSettings(lag_s=0.02)
     assert scan_settings(rig, settings, None, source) == settings.as_dict()
+
+
+def test_rail_options_given_on_the_command_line_override_the_rig_files(tmp_path):
+    """--rail, --rail-at, --rail-bandwidth given: every robot with a rail takes them (DESIGN
+    §8), in `check RIG` and `scan RIG` alike; not given: the rig file's (carrier: follow)."""
+    (case,) = short_cases(tmp_path / "cases", names=("landing_calm",))
+    rails = {}
+    for given in ([], ["--rail", "fixed"]):
+        result = run("check", DEMO_RIG, case, "--format", "json", *given)
+        rails[bool(given)] = json.loads(result.output)["settings"]["robots"]["carrier"]["rail"]
+    assert rails == {False: "follow", True: "fixed"}
+    store = tmp_path / "s.sqlite"
+    result = run("scan", DEMO_RIG, case, "--rail-at", 99, "--store", store, "--workers", 1)
+    assert result.exit_code == 2 and "--rail-at: 99 m is outside the rail range" in result.output
+    assert not store.exists()  # refused before any case

@@ -318,10 +318,9 @@ def check_command(
 
 
 def _given(ctx: typer.Context, *names: str) -> bool:
-    """True when any of the named options was given on the command line."""
-    from click.core import ParameterSource
-
-    return any(ctx.get_parameter_source(n) is ParameterSource.COMMANDLINE for n in names)
+    """True when any of the named options was given on the command line. (By the source's
+    name: typer's own copy of click has its own ParameterSource enum, not click's.)"""
+    return any(getattr(ctx.get_parameter_source(n), "name", None) == "COMMANDLINE" for n in names)
 
 
 def _check_rig(rig, scenario_path, settings, rails_given, fmt, out, joints_out, plot) -> None:
