@@ -148,18 +148,49 @@ def test_unicode_digits_are_refused_naming_line_and_column(tmp_path):
     refused(run("check", DEMO_ROBOT, case), f"case.csv line {k + 1}, column x_m", "ASCII digits")
 
 
-def test_no_numpy_warning_reaches_the_terminal(tmp_path):
-    """A sample 1e300 m away overflows squares inside the IK: the check still answers (reach
-    rows), and stderr stays empty, in check and in a scan's worker process. Subprocesses, so
-    warnings print as they would."""
+def case_with(tmp_path, column: int, value: str):
+    """The calm case with one value of its fourth sample replaced: (path, its line number)."""
     lines = calm_lines()
     k = header_index(lines) + 3
     fields = lines[k].split(",")
-    fields[1] = "1e300"
+    fields[column] = value
     lines[k] = ",".join(fields)
-    case = write_case(tmp_path, "case.csv", "\n".join(lines) + "\n")
+    return write_case(tmp_path, "case.csv", "\n".join(lines) + "\n"), k + 1
+
+
+@pytest.mark.parametrize(
+    ("column", "value", "named"),
+    [
+        (1, "1e300", "column x_m: 1e+300 m is beyond the plausible ±1000 m"),
+        (0, "1e12", "column t_s: 1e+12 s is beyond the plausible ±1e+06 s"),
+    ],
+)
+def test_absurd_trajectory_values_are_refused_with_warnings_as_errors(
+    tmp_path, column, value, named
+):
+    """A subprocess run with -W error (any warning, numpy's included, would end it with a
+    traceback): one line naming file, line and column, the bound and why; exit 2."""
+    case, line = case_with(tmp_path, column, value)
     done = subprocess.run(
-        [sys.executable, "-W", "default", "-m", "reachgate", "check", str(DEMO_ROBOT), str(case)],
+        [sys.executable, "-W", "error", "-m", "reachgate", "check", str(DEMO_ROBOT), str(case)],
+        capture_output=True,
+        text=True,
+        timeout=120,
+    )
+    assert done.returncode == 2, done.stderr
+    lines = done.stderr.strip().splitlines()
+    assert len(lines) == 1 and "Traceback" not in done.stderr
+    assert f"case.csv line {line}, {named}" in lines[0]
+    assert "for a robot cell (" in lines[0] and "check the value and its unit" in lines[0]
+
+
+def test_no_numpy_warning_reaches_the_terminal(tmp_path):
+    """A sample 999 m away (inside the plausible bound, far out of reach): the check answers
+    (reach rows), and stderr stays empty, in check and in a scan's worker process.
+    Subprocesses with -W error, so that any warning would end them."""
+    case, _ = case_with(tmp_path, 1, "999")
+    done = subprocess.run(
+        [sys.executable, "-W", "error", "-m", "reachgate", "check", str(DEMO_ROBOT), str(case)],
         capture_output=True,
         text=True,
         timeout=120,
@@ -170,7 +201,7 @@ def test_no_numpy_warning_reaches_the_terminal(tmp_path):
     store = tmp_path / "s.sqlite"
     command = ["scan", str(DEMO_ROBOT), str(case), "--workers", "1", "--quiet", "--store"]
     scanned = subprocess.run(  # a spawned worker process checks the case, as in every scan
-        [sys.executable, "-m", "reachgate", *command, str(store)],
+        [sys.executable, "-W", "error", "-m", "reachgate", *command, str(store)],
         capture_output=True,
         text=True,
         timeout=300,

@@ -13,7 +13,14 @@ from typer.testing import CliRunner
 
 from reachgate.cli import app
 from reachgate.errors import ReachgateError
-from reachgate.model.trajectory import Trajectory, load_trajectory, write_trajectory
+from reachgate.model.trajectory import (
+    Scenario,
+    Trajectory,
+    load_scenario,
+    load_trajectory,
+    write_scenario,
+    write_trajectory,
+)
 
 from conftest import DEMO_CASES, DEMO_ROBOT
 
@@ -127,3 +134,118 @@ def test_check_and_scan_read_parquet_as_they_read_csv(tmp_path):
                                "--format", "json"])  # fmt: skip
     cases = {c["case"]: c["verdict"] for c in json.loads(scan.stdout)["results"]}
     assert cases == {"bad.parquet": "error", "calm.parquet": "pass"}
+
+
+# -- scenarios of several bodies ---------------------------------------------------------------
+
+
+def landing_scenario(n: int = 200, seed: int = 1411) -> Scenario:
+    """Two bodies at common uneven times: a drone descending onto a pad that drifts."""
+    drone = jittered_path(n, seed)
+    t = drone.t_s
+    rpy = np.column_stack([np.zeros(n), 0.05 * np.sin(t), 0.3 * t])
+    pad = Trajectory.from_arrays(t, np.column_stack([0.2 * t, 1.0 + 0 * t, 0.5 + 0 * t]),
+                                 rpy_rad=rpy)  # fmt: skip
+    return Scenario.from_trajectories({"drone": drone, "pad": pad})
+
+
+def scenario_table(scenario: Scenario) -> pa.Table:
+    """The columns write_scenario writes, with a text column kept out."""
+    columns = {"t_s": scenario.t_s}
+    for body, path in scenario.bodies.items():
+        values = np.column_stack([path.scenario_p_m, path.scenario_q_wxyz])
+        for k, stem in enumerate(("x_m", "y_m", "z_m", "qw", "qx", "qy", "qz")):
+            columns[f"{body}.{stem}"] = values[:, k]
+    columns["operator"] = ["a"] * scenario.n_samples
+    return pa.table(columns)
+
+
+@pytest.mark.parametrize("suffix", [".parquet", ".feather"])
+def test_a_several_body_scenario_reads_the_same_arrays_as_its_csv(tmp_path, suffix):
+    source = landing_scenario()
+    csv_path = tmp_path / "landing.csv"
+    write_scenario(csv_path, source)
+    from_csv = load_scenario(csv_path)
+    columnar = load_scenario(write(scenario_table(source), tmp_path / f"landing{suffix}"))
+    assert list(columnar.bodies) == list(from_csv.bodies) == ["drone", "pad"]
+    assert np.array_equal(columnar.t_s, from_csv.t_s)
+    for body in ("drone", "pad"):
+        for name in ("t_s", "scenario_p_m", "scenario_q_wxyz"):
+            a, b = getattr(columnar.bodies[body], name), getattr(from_csv.bodies[body], name)
+            assert np.array_equal(a, b), (body, name)
+        assert columnar.bodies[body].name == f"landing{suffix} ({body})"
+    assert columnar.ignored_columns == ("operator",)
+    plain = load_scenario(write(as_table(jittered_path()), tmp_path / f"plain{suffix}"))
+    assert plain.is_plain and np.array_equal(plain.t_s, jittered_path().t_s)
+
+
+def _with_value(table: pa.Table, column: str, row: int, value) -> pa.Table:
+    values = table.column(column).to_pylist()
+    values[row] = value
+    return table.set_column(table.column_names.index(column), column, pa.array(values))
+
+
+@pytest.mark.parametrize(
+    ("column", "row", "value", "fault"),
+    [
+        ("pad.y_m", 4, float("nan"), "column pad.y_m: nan is not a finite number"),
+        ("drone.qx", 2, 0.5, "columns drone.qw,drone.qx,drone.qy,drone.qz: quaternion length"),
+        ("t_s", 5, None, "column t_s: time"),  # the time of the row before: repeats
+        ("drone.z_m", 3, 1e300, "column drone.z_m: 1e+300 m is beyond the plausible ±1000 m"),
+    ],
+)
+def test_several_body_faults_are_the_csv_faults_named_by_row(tmp_path, column, row, value, fault):
+    """The same bad value in the CSV and in the Parquet file: the same message, the CSV's line
+    (1 header line, so row k is line k + 1) given as the row (the CSV quotes a field's text)."""
+    table = scenario_table(landing_scenario(12, seed=1412))
+    if value is None:
+        value = table.column("t_s")[row - 1].as_py()
+    table = _with_value(table, column, row, value)
+    parquet = write(table, tmp_path / "bad.parquet")
+    csv_path = tmp_path / "bad.csv"
+    scenario = {k: table.column(k).to_numpy() for k in table.column_names if k != "operator"}
+    text = ",".join(scenario) + "\n"
+    rows = np.column_stack(list(scenario.values())).tolist()
+    text += "".join(",".join(repr(v) for v in r) + "\n" for r in rows)
+    csv_path.write_text(text)
+    with pytest.raises(ReachgateError) as from_csv:
+        load_scenario(csv_path)
+    with pytest.raises(ReachgateError) as from_parquet:
+        load_scenario(parquet)
+    assert f"bad.parquet row {row + 1}, {fault}" in str(from_parquet.value)
+    assert str(from_parquet.value).replace("bad.parquet row", "bad.csv line") == (
+        str(from_csv.value).replace(f"line {row + 2}", f"line {row + 1}").replace("'", "")
+    )
+
+
+def test_several_body_header_faults_read_as_in_csv(tmp_path):
+    table = scenario_table(landing_scenario(5, seed=1413)).drop_columns(["pad.qz"])
+    with pytest.raises(ReachgateError, match=r"missing\.feather: body pad: missing column qz"):
+        load_scenario(write(table, tmp_path / "missing.feather"))
+    table = scenario_table(landing_scenario(5, seed=1414))
+    table = table.append_column("x_m", table.column("t_s"))
+    with pytest.raises(ReachgateError, match=r"plain\.parquet, column x_m: a pose column without"):
+        load_scenario(write(table, tmp_path / "plain.parquet"))
+
+
+def test_check_of_a_rig_reads_a_parquet_scenario_as_its_csv(tmp_path):
+    """check RIG SCENARIO on the demo rig's calm landing (every 8th sample, for speed), once
+    from CSV and once from Parquet: the same exit code, verdict, rows and margins."""
+    calm = load_scenario(DEMO_CASES / "rig" / "landing_calm.csv")
+    short = Scenario.from_trajectories(
+        {body: Trajectory.from_arrays(path.t_s[::8], path.scenario_p_m[::8],
+                                      path.scenario_q_wxyz[::8])
+         for body, path in calm.bodies.items()}
+    )  # fmt: skip
+    write_scenario(tmp_path / "calm.csv", short)
+    parquet = write(scenario_table(short), tmp_path / "calm.parquet")
+    rig = DEMO_ROBOT.parent.parent / "rigs" / "demo_landing_rig.toml"
+    reports = []
+    for path in (tmp_path / "calm.csv", parquet):
+        result = runner.invoke(app, ["check", str(rig), str(path), "--format", "json"])
+        assert result.exit_code in (0, 1), result.output
+        reports.append((result.exit_code, json.loads(result.stdout)))
+    (code_csv, from_csv), (code_parquet, from_parquet) = reports
+    assert code_csv == code_parquet
+    for key in ("verdict", "violations", "margins"):
+        assert from_parquet[key] == from_csv[key], key

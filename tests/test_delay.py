@@ -130,6 +130,11 @@ def test_cli_on_pose_logs_prints_the_lag_to_use_and_writes_json_and_a_picture(tm
         ("t_s,j1_deg,j2_deg\n0,1,1\n1,2,2\n", "t_s,j1_deg\n0,1\n1,2\n", "no column for axis j2"),
         ("t_s,j1_deg\n0,1\n1,2\n", "t_s,j1_deg\n5,1\n6,2\n", "do not overlap"),
         ("t_s,j1_deg\n0,1\n1,2\n", "t_s,j1_deg\n0,1\n0.5,x\n", "line 3, column j1_deg"),
+        ("t_s,j1_deg\n0,1\n1,2\n", "t_s,j1_deg\n0,1\n1,4000\n",
+         "line 3, column j1_deg: 4000 deg is beyond the plausible ±3600 deg"),
+        ("t_s,rail_mm\n0,1\n1e12,2\n", "t_s,rail_mm\n0,1\n1,2\n",
+         "c.csv line 3, column t_s: 1e+12 s is beyond the plausible ±1e+06 s"),
+        ("t_s,j1_rad\n0,1\n1,2\n", "t_s,j1_rad\n0,1\n0,2\n3,x\n", "line 3, column t_s: time 0"),
         ("t_s,j1_deg\n0,1\n1,2\n", "t_s,j1_deg\n0,1\n1,2\n", "at least 512"),
     ],
 )  # fmt: skip

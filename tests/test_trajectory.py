@@ -244,10 +244,11 @@ def test_quaternion_near_unit_is_normalised_and_unit_one_is_kept_bit_for_bit(tmp
 
 def test_write_then_load_gives_identical_arrays(tmp_path):
     source = random_trajectory(14, n=2000)
-    # Awkward magnitudes: tiny, huge, negative zero, values that need all 17 digits.
+    # Awkward magnitudes: tiny, the largest a position may have (samples.POSITION_BOUND),
+    # negative zero, values that need all 17 digits.
     p = source.scenario_p_m.copy()
-    p[0] = [1e-300, -0.0, 123456789.12345679]
-    p[1] = [np.nextafter(1.0, 2.0), 2.0**-1074, -1e300]
+    p[0] = [1e-300, -0.0, 987.65432109876543]
+    p[1] = [np.nextafter(1.0, 2.0), 2.0**-1074, -np.nextafter(1000.0, 0.0)]
     source = Trajectory.from_arrays(source.t_s, p, source.scenario_q_wxyz)
     path = tmp_path / "round.csv"
     write_trajectory(path, source, comments=("case 7", "seed = 3\nintensity = light"))
@@ -415,6 +416,49 @@ def test_first_fault_in_file_order_is_reported(tmp_path):
     assert "line 5, column t_s" in load_error(csv(tmp_path, lines))
 
 
+# The plausible bounds of a robot cell (model/samples.py); rows 3-5 good, the bad row at line 6.
+@pytest.mark.parametrize(
+    ("header", "bad_row", "where", "fault"),
+    [
+        (HEADER, "0.03,1e300,0.2,0.3,1,0,0,0", "column x_m",
+         "1e+300 m is beyond the plausible ±1000 m for a robot cell"),
+        (HEADER, "0.03,0.1,-1000.5,0.3,1,0,0,0", "column y_m", "-1000.5 m is beyond"),
+        ("t_s,x_mm,y_mm,z_mm,qw,qx,qy,qz", "0.03,100,2e9,300,1,0,0,0", "column y_mm",
+         "2e+09 mm is beyond the plausible ±1e+06 mm (1000 m)"),
+        (HEADER, "1e12,0.1,0.2,0.3,1,0,0,0", "column t_s",
+         "1e+12 s is beyond the plausible ±1e+06 s"),
+        (HEADER, "0.020000000000001,0.1,0.2,0.3,1,0,0,0", "column t_s",
+         "time step 9.99e-16 s (from 0.02 s to 0.020000000000001 s) is below the plausible 1e-06"),
+        (HEADER, "0.03,0.1,0.2,0.3,1e300,1e300,0,0", "columns qw,qx,qy,qz",
+         "quaternion length inf is more than 1e-06 from 1"),
+        ("t_s,x_m,y_m,z_m,roll_deg,pitch_deg,yaw_deg", "0.03,0.1,0.2,0.3,0,0,4e5", "column yaw_deg",
+         "400000 deg is beyond the plausible ±360000 deg (6283.19 rad)"),
+    ],
+)  # fmt: skip
+def test_values_beyond_the_plausible_bounds_are_refused_with_the_bound_and_why(
+    tmp_path, header, bad_row, where, fault
+):
+    orientation = "0,0,0" if "roll" in header else "1,0,0,0"
+    good = [f"{t},0.1,0.2,0.3,{orientation}" for t in (0.0, 0.01, 0.02, 0.1, 0.11)]
+    path = csv(tmp_path, ["# approach", header, *good[:3], bad_row, *good[3:]])
+    message = load_error(path)
+    assert message.startswith(f"{path} line 6, {where}: "), message
+    assert fault in message, message
+
+
+def test_values_at_the_plausible_bounds_are_taken(tmp_path):
+    """The bounds themselves are inside: ±1000 m, ±1e6 s, a 1 µs step."""
+    lines = [
+        HEADER,
+        "-1e6,1000,-1000,0,1,0,0,0",
+        "-999999.999999,0,0,0,1,0,0,0",
+        "1e6,0,0,0,1,0,0,0",
+    ]
+    trajectory = load_trajectory(csv(tmp_path, lines))
+    assert trajectory.scenario_p_m[0].tolist() == [1000.0, -1000.0, 0.0]
+    assert trajectory.t_s.tolist() == [-1e6, -999999.999999, 1e6]
+
+
 # --- from_arrays --------------------------------------------------------------------------
 
 
@@ -431,6 +475,10 @@ def test_from_arrays_refuses_bad_samples_naming_sample_and_quantity():
         Trajectory.from_arrays([0.0, 1.0, 2.0], np.zeros((3, 3)), np.zeros((3, 3)))
     with pytest.raises(ReachgateError, match="once"):
         Trajectory.from_arrays([0.0, 1.0], np.zeros((2, 3)))
+    with pytest.raises(ReachgateError, match=r"sample 1, y: 2000 m is beyond the plausible"):
+        Trajectory.from_arrays([0.0, 1.0], [[0, 0, 0], [0, 2e3, 0]], rpy_rad=np.zeros((2, 3)))
+    with pytest.raises(ReachgateError, match=r"sample 0, yaw: 100000 rad is beyond"):
+        Trajectory.from_arrays([0.0, 1.0], np.zeros((2, 3)), rpy_rad=[[0, 0, 1e5], [0, 0, 0]])
 
 
 def test_from_arrays_with_rpy_matches_scipy():

@@ -3,7 +3,7 @@
 Long logs of real-time simulations (hours at 1 kHz) load several times faster from these
 than from CSV: the numbers are stored as binary float64, nothing is parsed. The columns and
 every rule are those of the CSV form (DESIGN §4): the same names and units, the same
-mapping (trajectory._map_columns), the same sample rules (trajectory._first_fault); a fault
+mapping (trajectory._map_columns), the same sample rules (samples.first_fault); a fault
 is named by its row (1 = the first data row) and column.
 """
 

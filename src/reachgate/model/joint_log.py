@@ -2,8 +2,9 @@
 
 The format is the one `check --joints-out` writes: '#' comment lines, a header, then rows.
 Columns: ``t_s`` and one column per axis named ``<axis>_deg``, ``<axis>_rad``, ``<axis>_m`` or
-``<axis>_mm``; other columns are kept out and named. Time strictly increases; every value is a
-finite number. Faults name the file, the line and the column.
+``<axis>_mm``; other columns are kept out and named. The text, time and number rules are
+those of trajectories (model/csv_text.py, model/samples.py); axis values lie within a robot
+file's plausible bounds. Faults name the file, the line and the column.
 """
 
 from __future__ import annotations
@@ -15,10 +16,22 @@ from pathlib import Path
 import numpy as np
 
 from reachgate.errors import ReachgateError
-from reachgate.model.trajectory import _is_skipped, _parse_number, _read_header
+from reachgate.model.csv_text import read_header, scan_rows
+from reachgate.model.robot import PLAUSIBLE
+from reachgate.model.samples import TIME_RULE, ColumnRule, SampleBound, first_fault
 
 #: Column-name suffixes of axis values and their factor to SI (rad or m).
 AXIS_UNITS = {"deg": math.pi / 180.0, "rad": 1.0, "m": 1.0, "mm": 1e-3}
+#: Axis values beyond a robot file's plausible bounds (robot.PLAUSIBLE) are refused alike.
+_AXIS_BOUNDS = {
+    "rad": SampleBound(math.radians(PLAUSIBLE["deg"].highest), "rad", PLAUSIBLE["deg"].why),
+    "m": SampleBound(PLAUSIBLE["m"].highest, "m", PLAUSIBLE["m"].why),
+}
+
+
+def _axis_rule(column: str) -> ColumnRule:
+    unit = column.rpartition("_")[2]
+    return ColumnRule(_AXIS_BOUNDS["m" if unit in ("m", "mm") else "rad"], unit, AXIS_UNITS[unit])
 
 
 @dataclass(frozen=True, eq=False)
@@ -51,7 +64,7 @@ def load_joint_log(path: str | Path) -> JointLog:
     """Load and validate an axis-value log. Raises ReachgateError naming file, line, column."""
     path = Path(path)
     label = str(path)
-    header_line, header = _read_header(path, label)
+    header_line, header = read_header(path, label)
     if "t_s" not in header:
         raise ReachgateError(f"{label} line {header_line}: missing column t_s")
     try:
@@ -62,39 +75,18 @@ def load_joint_log(path: str | Path) -> JointLog:
         raise ReachgateError(
             f"{label} line {header_line}: no axis columns (name them <axis>_deg, _rad, _m or _mm)"
         )
-    use = [header.index("t_s")] + [index for index, _ in axes.values()]
-    rows, lines = [], []
-    text = path.read_text(encoding="utf-8", errors="replace").split("\n")
-    for line_no in range(header_line + 1, len(text) + 1):
-        line = text[line_no - 1]
-        if _is_skipped(line):
-            continue
-        fields = line.split(",")
-        if len(fields) != len(header):
-            raise ReachgateError(
-                f"{label} line {line_no}: {len(fields)} fields, the header has {len(header)}"
-            )
-        row = []
-        for j in use:
-            value = _parse_number(fields[j].strip())
-            if value is None or not math.isfinite(value):
-                raise ReachgateError(
-                    f"{label} line {line_no}, column {header[j]}: "
-                    f"{fields[j].strip()!r} is not a finite number"
-                )
-            row.append(value)
-        rows.append(row)
-        lines.append(line_no)
-    if len(rows) < 2:
-        raise ReachgateError(f"{label}: fewer than 2 data rows")
-    table = np.array(rows)
-    steps = np.diff(table[:, 0])
-    if (steps <= 0).any():
-        bad = int(np.argmax(steps <= 0)) + 1
-        raise ReachgateError(
-            f"{label} line {lines[bad]}, column t_s: time does not increase "
-            f"({table[bad, 0]!r} s after {table[bad - 1, 0]!r} s)"
-        )
+    use = (header.index("t_s"), *(index for index, _ in axes.values()))
+    rules = (TIME_RULE, *(_axis_rule(header[j]) for j in use[1:]))
+
+    def raise_fault(values: np.ndarray, line_numbers: list[int]) -> None:
+        fault = first_fault(values, rules)
+        if fault is not None:
+            row, col, text = fault
+            where = f"line {line_numbers[row]}, column {header[use[col]]}"
+            raise ReachgateError(f"{label} {where}: {text}")
+
+    table, lines = scan_rows(path, label, header_line, tuple(header), use, raise_fault)
+    raise_fault(table, lines)
     factors = np.array([factor for _, factor in axes.values()])
     used = {header[j] for j in use}
     return JointLog(

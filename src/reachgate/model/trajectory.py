@@ -11,20 +11,28 @@ accepts files that the scan would accept with the same values.
 
 from __future__ import annotations
 
-import csv
 import math
 import sys
 import warnings
 from collections.abc import Iterator
 from dataclasses import dataclass, field, replace
 from pathlib import Path
-from typing import NoReturn
+from typing import Any, NoReturn
 
 import numpy as np
 
 from reachgate.errors import ReachgateError
 from reachgate.model.columnar import column_values, is_columnar, read_table
-from reachgate.model.transforms import UNIT_QUATERNION_TOL, quat_to_matrix, transform
+from reachgate.model.csv_text import read_header, scan_rows
+from reachgate.model.samples import (
+    TIME_RULE,
+    ColumnRule,
+    angle_rule,
+    first_fault,
+    length_rule,
+    quaternion_lengths,
+)
+from reachgate.model.transforms import quat_to_matrix, transform
 
 #: A quaternion whose length is already this close to 1 is kept bit for bit instead of being
 #: divided by its length: x / |x| is not idempotent in floating point, and a written-then-loaded
@@ -103,7 +111,9 @@ class Trajectory:
             )
         columns = np.column_stack([t_s, p_m, orientation])
         names = ("t_s", "x", "y", "z", *(_QUAT_COLUMNS if width == 4 else ("roll", "pitch", "yaw")))
-        fault = _first_fault(columns, quaternion_at=4 if width == 4 else None)
+        rules = (TIME_RULE, *[length_rule("m", 1.0)] * 3)
+        rules += (None,) * 4 if width == 4 else (angle_rule("rad", 1.0),) * 3
+        fault = first_fault(columns, rules, quaternion_at=4 if width == 4 else None)
         if fault is not None:
             row, col, text = fault
             raise ReachgateError(f"{name}: sample {row}, {names[col]}: {text}")
@@ -147,52 +157,11 @@ def rpy_to_quat(rpy_rad: np.ndarray) -> np.ndarray:
 # --- rules shared by arrays and files ---------------------------------------------------------
 
 
-def _quat_lengths(q: np.ndarray) -> np.ndarray:
-    return np.sqrt(np.einsum("ij,ij->i", q, q))
-
-
 def _normalised(q: np.ndarray) -> np.ndarray:
     """(N, 4) quaternions divided by their length, except those already unit to rounding."""
-    length = _quat_lengths(q)
+    length = quaternion_lengths(q)
     scale = np.where(np.abs(length - 1.0) > RENORMALISE_ABOVE, 1.0 / length, 1.0)
     return q * scale[:, None]
-
-
-def _first_fault(columns: np.ndarray, quaternion_at: int | None) -> tuple[int, int, str] | None:
-    """The earliest sample that breaks a rule, as (row, column index, what is wrong), or None.
-
-    columns: (N, C) with time in column 0; quaternion_at: first of 4 quaternion columns, if any.
-    Rules: every value finite, time strictly increasing, quaternions within
-    UNIT_QUATERNION_TOL of unit length. Ties go to the fault found first in a row.
-    """
-    finite = np.isfinite(columns)
-    if not finite.all():
-        row, col = divmod(int(np.argmin(finite.ravel())), columns.shape[1])
-        return row, col, f"{float(columns[row, col])!r} is not a finite number"
-    faults: list[tuple[int, int, str]] = []
-    t = columns[:, 0]
-    steps = np.diff(t)
-    if (steps <= 0).any():
-        row = int(np.argmax(steps <= 0)) + 1
-        if steps[row - 1] == 0:
-            text = f"time {float(t[row])!r} s repeats the time of the sample before"
-        else:
-            text = f"time {float(t[row])!r} s is before the sample before ({float(t[row - 1])!r} s)"
-        faults.append((row, 0, text))
-    if quaternion_at is not None:
-        length = _quat_lengths(columns[:, quaternion_at : quaternion_at + 4])
-        off = np.abs(length - 1.0) > UNIT_QUATERNION_TOL
-        if off.any():
-            row = int(np.argmax(off))
-            faults.append(
-                (
-                    row,
-                    quaternion_at,
-                    f"quaternion length {length[row]:.9g} is more than "
-                    f"{UNIT_QUATERNION_TOL:g} from 1",
-                )
-            )
-    return min(faults, key=lambda f: f[0]) if faults else None
 
 
 # --- the header ---------------------------------------------------------------------------------
@@ -208,13 +177,34 @@ class _Columns:
 
     names: tuple[str, ...]
     use: tuple[int, ...]
-    length_scale: float
-    angle_scale: float | None  # None: quaternion columns
+    length_unit: str
+    angle_unit: str | None  # None: quaternion columns
     ignored: tuple[str, ...]
 
     @property
     def has_quaternion(self) -> bool:
-        return self.angle_scale is None
+        return self.angle_unit is None
+
+    @property
+    def length_scale(self) -> float:
+        return _LENGTH_UNITS[self.length_unit]
+
+    @property
+    def angle_scale(self) -> float | None:
+        return None if self.angle_unit is None else _ANGLE_UNITS[self.angle_unit]
+
+    @property
+    def rules(self) -> tuple[ColumnRule | None, ...]:
+        """The sample rules of the used columns, in the order of use."""
+        lengths = (length_rule(self.length_unit, self.length_scale),) * 3
+        if self.angle_unit is None:
+            return (TIME_RULE, *lengths, None, None, None, None)
+        return (TIME_RULE, *lengths, *(angle_rule(self.angle_unit, self.angle_scale),) * 3)
+
+    @property
+    def quaternion_at(self) -> int | None:
+        """Index in the used columns of qw, or None."""
+        return 4 if self.has_quaternion else None
 
 
 class _HeaderError(Exception):
@@ -239,8 +229,9 @@ def _unit_of(names: list[str], stem: str) -> list[tuple[str, str]]:
 
 def _pick_units(
     names: list[str], stems: tuple[str, ...], units: dict[str, float], what: str
-) -> tuple[list[str], float] | None:
-    """The columns giving each stem with one allowed unit, or None when no stem has any."""
+) -> tuple[list[str], str] | None:
+    """The columns giving each stem with one allowed unit, and that unit; None when no stem
+    has any."""
     allowed = ", ".join(units)
     chosen: list[str] = []
     chosen_units: list[str] = []
@@ -260,7 +251,7 @@ def _pick_units(
             odd,
             f"{what} columns mix units ({', '.join(chosen)}); use one of {allowed} for all",
         )
-    return chosen, units[chosen_units[0]]
+    return chosen, chosen_units[0]
 
 
 def _raise_unknown_unit_or_missing(
@@ -297,7 +288,7 @@ def _map_columns(names: list[str]) -> _Columns:
     position = _pick_units(names, _AXES, _LENGTH_UNITS, "position")
     if position is None:
         _raise_unknown_unit_or_missing(names, "x", _LENGTH_UNITS)
-    p_names, length_scale = position
+    p_names, length_unit = position
     quat_present = [n for n in _QUAT_COLUMNS if n in seen]
     rpy = _pick_units(names, _ANGLES, _ANGLE_UNITS, "orientation")
     if quat_present and rpy is not None:
@@ -309,9 +300,9 @@ def _map_columns(names: list[str]) -> _Columns:
         for n in _QUAT_COLUMNS:
             if n not in seen:
                 raise _HeaderError(None, f"missing column {n} (have {', '.join(quat_present)})")
-        o_names, angle_scale = list(_QUAT_COLUMNS), None
+        o_names, angle_unit = list(_QUAT_COLUMNS), None
     elif rpy is not None:
-        o_names, angle_scale = rpy
+        o_names, angle_unit = rpy
     else:
         for stem in _ANGLES:
             if _unit_of(names, stem):
@@ -325,89 +316,51 @@ def _map_columns(names: list[str]) -> _Columns:
     return _Columns(
         names=tuple(names),
         use=tuple(seen[n] for n in used),
-        length_scale=length_scale,
-        angle_scale=angle_scale,
+        length_unit=length_unit,
+        angle_unit=angle_unit,
         ignored=tuple(n for n in names if n not in used),
     )
 
 
+@dataclass(frozen=True, eq=False)
+class _Layout:
+    """What to read from a file: its header names and each body's columns (their `use`
+    indexing the header); use: the columns read, time first, then each body's in order."""
+
+    names: tuple[str, ...]
+    bodies: dict[str, _Columns]
+    use: tuple[int, ...] = field(init=False)
+
+    def __post_init__(self) -> None:
+        own = (i for columns in self.bodies.values() for i in columns.use[1:])
+        object.__setattr__(self, "use", (self.names.index(_TIME_COLUMN), *own))
+
+
+@dataclass(frozen=True, eq=False)
+class _Source:
+    """A trajectory file opened for reading: its column names, and its header line (CSV) or
+    its whole table (Parquet, Arrow IPC)."""
+
+    names: tuple[str, ...]
+    header_line: int = 0
+    table: Any = None
+
+    def header_fault(self, label: str, error: _HeaderError, hint: str = "") -> ReachgateError:
+        line = "" if self.table is not None else f" line {self.header_line}"
+        where = f", column {error.column}" if error.column else ""
+        return ReachgateError(f"{label}{line}{where}: {error.text}{hint}")
+
+
+def _open_source(path: Path, label: str) -> _Source:
+    """The file's column names and where its values are (columnar files by their ending)."""
+    if is_columnar(path):
+        table = read_table(path, label)
+        return _Source(tuple(str(name).strip() for name in table.column_names), table=table)
+    header_line, names = read_header(path, label)
+    return _Source(tuple(names), header_line=header_line)
+
+
 # --- reading ------------------------------------------------------------------------------------
-
-
-def _is_skipped(line: str) -> bool:
-    """Blank lines and comment lines (first non-blank character '#') carry no data."""
-    stripped = line.strip()
-    return not stripped or stripped.startswith("#")
-
-
-def _decode_line(raw: bytes, label: str, line_no: int) -> str:
-    if b"\x00" in raw:
-        raise ReachgateError(f"{label} line {line_no}: binary data (NUL byte), not a CSV text file")
-    try:
-        return raw.decode("utf-8")
-    except UnicodeDecodeError as error:
-        bad = raw[error.start : error.start + 1]
-        column = len(raw[: error.start].decode("utf-8", errors="replace")) + 1
-        raise ReachgateError(
-            f"{label} line {line_no}, column {column}: byte 0x{bad.hex()} is not UTF-8 text; "
-            f"{ENCODING_ADVICE}"
-        ) from None
-
-
-#: What to do about a file in another encoding (a spreadsheet's Latin-1 or Windows-1252).
-ENCODING_ADVICE = (
-    "save the file as UTF-8 (it may be Latin-1 or Windows-1252, as some spreadsheets write)"
-)
-
-#: Separators people use instead of the comma, by the name a message gives them.
-_WRONG_SEPARATORS = {";": "semicolon ';'", "\t": "tab", "|": "vertical bar '|'"}
-
-
-def _header_names(text: str, label: str, line_no: int) -> list[str]:
-    """Column names of a header line: comma separated, each optionally in double quotes as
-    RFC 4180 allows ("t_s","x_m"); a header that uses another separator is refused by name."""
-    if "," not in text:
-        for separator, name in _WRONG_SEPARATORS.items():
-            if separator in text:
-                raise ReachgateError(
-                    f"{label} line {line_no}: columns are separated by {name}, not by commas; "
-                    "reachgate reads comma-separated files (export the file as CSV with ',')"
-                )
-    names = next(csv.reader([text]))
-    return [name.strip() for name in names]
-
-
-def _read_header(path: Path, label: str) -> tuple[int, list[str]]:
-    """(1-based line number of the header, stripped column names). Raises on an empty file."""
-    try:
-        if path.stat().st_size == 0:
-            raise ReachgateError(f"{label}: file is empty")
-        _refuse_cr_only_line_ends(path, label)
-        with path.open("rb") as handle:
-            for line_no, raw in enumerate(handle, start=1):
-                text = _decode_line(raw, label, line_no)
-                if line_no == 1:
-                    text = text.removeprefix("\ufeff")  # byte-order mark some editors write
-                if not _is_skipped(text):
-                    return line_no, _header_names(text.rstrip("\r\n"), label, line_no)
-    except FileNotFoundError:
-        raise ReachgateError(f"{label}: file not found") from None
-    except IsADirectoryError:
-        raise ReachgateError(f"{label}: is a folder, not a trajectory file") from None
-    except PermissionError:
-        raise ReachgateError(f"{label}: cannot read the file (permission denied)") from None
-    raise ReachgateError(f"{label}: no header line (the file holds only comments or blank lines)")
-
-
-def _refuse_cr_only_line_ends(path: Path, label: str) -> None:
-    """A file whose lines end in CR alone (classic Mac OS) reads as one line: say so."""
-    with path.open("rb") as handle:
-        start = handle.read(1 << 16)
-    if b"\r" in start and b"\n" not in start:
-        raise ReachgateError(
-            f"{label}: lines end in a carriage return (CR) alone, an old Mac OS format; "
-            "save the file with LF or CR LF line ends"
-        )
 
 
 def import_fast_reader() -> bool:
@@ -442,8 +395,8 @@ def _screen(path: Path, header_line: int) -> tuple[int, int] | None:
     return start, newlines - header_line + 1  # + 1: a last line without a newline
 
 
-def _arrow_values(path: Path, header_line: int, columns: _Columns) -> np.ndarray | None:
-    """The used columns as (N, 7 or 8) floats from pyarrow's CSV reader, or None.
+def _arrow_values(path: Path, header_line: int, layout: _Layout) -> np.ndarray | None:
+    """The used columns as (N, len(layout.use)) floats from pyarrow's CSV reader, or None.
 
     None (and so the next path) for anything unusual: pyarrow missing, bytes that are not
     plain ASCII (the scan words those faults), a row with another number of fields, a value
@@ -459,8 +412,8 @@ def _arrow_values(path: Path, header_line: int, columns: _Columns) -> np.ndarray
     if screened is None:
         return None
     start, most_rows = screened
-    names = [f"c{i}" for i in range(len(columns.names))]  # header names may be anything
-    used = [names[i] for i in columns.use]
+    names = [f"c{i}" for i in range(len(layout.names))]  # header names may be anything
+    used = [names[i] for i in layout.use]
     values = np.empty((most_rows, len(used)))
     rows = 0
     try:
@@ -488,8 +441,9 @@ def _arrow_values(path: Path, header_line: int, columns: _Columns) -> np.ndarray
     return values[:rows] if rows >= 2 else None
 
 
-def _fast_values(path: Path, header_line: int, columns: _Columns) -> np.ndarray | None:
-    """The used columns as (N, 7 or 8) floats from one np.loadtxt call, or None if it fails.
+def _fast_values(path: Path, header_line: int, layout: _Layout) -> np.ndarray | None:
+    """The used columns as (N, len(layout.use)) floats from one np.loadtxt call, or None if
+    it fails.
 
     comments=None: a comment line inside the data block makes loadtxt fail (too few fields),
     so such files go to the line-by-line scan, which knows where comments may start. Columns
@@ -497,10 +451,10 @@ def _fast_values(path: Path, header_line: int, columns: _Columns) -> np.ndarray 
     labels), while loadtxt still counts every field of every line.
     """
     if "pyarrow.csv" in sys.modules or path.stat().st_size >= ARROW_MIN_BYTES:
-        values = _arrow_values(path, header_line, columns)
+        values = _arrow_values(path, header_line, layout)
         if values is not None:
             return values
-    unused = set(range(len(columns.names))) - set(columns.use)
+    unused = set(range(len(layout.names))) - set(layout.use)
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")  # "input contained no data": the scan says it better
@@ -515,150 +469,100 @@ def _fast_values(path: Path, header_line: int, columns: _Columns) -> np.ndarray 
             )
     except ValueError:  # includes UnicodeDecodeError
         return None
-    if block.shape[0] < 2 or block.shape[1] != len(columns.names):
+    if block.shape[0] < 2 or block.shape[1] != len(layout.names):
         return None
-    if columns.use == tuple(range(block.shape[1])):
+    if layout.use == tuple(range(block.shape[1])):
         return block  # the usual file: no column to drop, no copy
-    return block[:, columns.use]
+    return block[:, layout.use]
 
 
 def _ignored_field(text: str) -> float:
     return 0.0
 
 
-def _parse_number(text: str) -> float | None:
-    """float(text), or None if text is not a plain decimal number (float() also takes '1_0'
-    and digits of other scripts, such as '١')."""
-    if not text or "_" in text or not text.isascii():
-        return None
-    try:
-        return float(text)
-    except ValueError:
-        return None
+def _scan_values(path: Path, label: str, header_line: int, layout: _Layout):
+    """Line-by-line parse: (values (N, len(use)), line numbers (N,)). Raises at the first
+    fault, a broken sample rule of the rows before a fault of the text included."""
+    return scan_rows(
+        path,
+        label,
+        header_line,
+        layout.names,
+        layout.use,
+        lambda values, line_numbers: _raise_sample_fault(values, line_numbers, layout, label),
+    )
 
 
-def _scan_values(path: Path, label: str, header_line: int, columns: _Columns):
-    """Line-by-line parse: (values (N, len(use)), line numbers (N,)). Raises at the first fault."""
-    raw = path.read_bytes()
-    if b"\x00" in raw or not raw.isascii():
-        # Find the faulty line and let the one-line decoder word the message.
-        for line_no, raw_line in enumerate(raw.split(b"\n"), start=1):
-            _decode_line(raw_line, label, line_no)
-    text = raw.decode("utf-8")
-    lines = text.split("\n")
-    n_fields = len(columns.names)
-
-    def fail(message: str) -> NoReturn:
-        """Raise a rule broken by the rows read so far (it comes earlier), else `message`."""
-        if rows:
-            _raise_sample_fault(np.array(rows), line_numbers, columns, label)
-        raise ReachgateError(message)
-
-    use = columns.use
-    rows: list[list[float]] = []
-    line_numbers: list[int] = []
-    for line_no in range(header_line + 1, len(lines) + 1):
-        line = lines[line_no - 1]
-        if _is_skipped(line):
-            continue
-        fields = line.split(",")
-        if len(fields) != n_fields:
-            if len(fields) < n_fields:
-                missing = ", ".join(columns.names[len(fields) :])
-                detail = (
-                    f"short row: {len(fields)} fields, the header has {n_fields} "
-                    f"({missing} missing)"
-                )
+def _sample_fault(values: np.ndarray, layout: _Layout) -> tuple[int, str, str] | None:
+    """(row, 'column NAME' or 'columns A,B,C,D', what is wrong) of the earliest broken rule
+    over every body's columns, or None. values: (N, len(layout.use)), time first."""
+    faults = []
+    at = 1
+    for columns in layout.bodies.values():
+        width = len(columns.use) - 1
+        own = values if len(layout.bodies) == 1 else values[:, [0, *range(at, at + width)]]
+        fault = first_fault(own, columns.rules, columns.quaternion_at)
+        if fault is not None:
+            row, col, text = fault
+            if col == columns.quaternion_at:
+                where = "columns " + ",".join(columns.names[i] for i in columns.use[4:8])
             else:
-                detail = f"long row: {len(fields)} fields, the header has {n_fields}"
-            fail(f"{label} line {line_no}: {detail}")
-        row = []
-        for j in use:
-            field_text = fields[j].strip()
-            value = _parse_number(field_text)
-            where = f"{label} line {line_no}, column {columns.names[j]}"
-            if value is None:
-                if not field_text:
-                    fail(f"{where}: empty value")
-                if not field_text.isascii():
-                    fail(f"{where}: {field_text!r} is not a number (only the ASCII digits 0-9)")
-                fail(f"{where}: {field_text!r} is not a number")
-            if not math.isfinite(value):
-                fail(f"{where}: {field_text!r} is not a finite number")
-            row.append(value)
-        rows.append(row)
-        line_numbers.append(line_no)
-    if not rows:
-        raise ReachgateError(f"{label} line {header_line}: a header but no data rows")
-    if len(rows) < 2:
-        raise ReachgateError(
-            f"{label} line {line_numbers[0]}: only one sample; a trajectory needs at least 2"
-        )
-    return np.array(rows, dtype=float), line_numbers
+                where = "column " + columns.names[columns.use[col]]
+            faults.append((row, where, text))
+        at += width
+    return min(faults, key=lambda f: f[0]) if faults else None
 
 
 def _raise_sample_fault(
-    values: np.ndarray, line_numbers: list[int], columns: _Columns, label: str
+    values: np.ndarray, line_numbers: list[int] | None, layout: _Layout, label: str
 ) -> None:
-    """Raise the earliest broken rule among parsed rows (N, len(use)), if any, at its line."""
-    fault = _first_fault(values, 4 if columns.has_quaternion else None)
+    """Raise the earliest broken rule among rows (N, len(layout.use)), if any, at its line
+    (CSV) or, without line numbers, at its row (1 = the first data row of a columnar file)."""
+    fault = _sample_fault(values, layout)
     if fault is None:
         return
-    row, col, text = fault
-    if columns.has_quaternion and col == 4:
-        where = "columns " + ",".join(_QUAT_COLUMNS)
-    else:
-        where = "column " + columns.names[columns.use[col]]
-    raise ReachgateError(f"{label} line {line_numbers[row]}, {where}: {text}")
+    row, where, text = fault
+    place = f"row {row + 1}" if line_numbers is None else f"line {line_numbers[row]}"
+    raise ReachgateError(f"{label} {place}, {where}: {text}")
+
+
+def _layout_values(path: Path, label: str, source: _Source, layout: _Layout) -> np.ndarray:
+    """The validated used columns (N, len(layout.use)) of a file, time first, in file units.
+
+    CSV: the fast path, and the line-by-line scan only when that fails or a rule is broken;
+    a columnar file: its columns as they are stored.
+    """
+    if source.table is not None:
+        values = column_values(source.table, layout.names, layout.use, label)
+        if values.shape[0] < 2:
+            raise ReachgateError(f"{label}: {values.shape[0]} rows; a trajectory needs at least 2")
+        _raise_sample_fault(values, None, layout, label)
+        return values
+    values = _fast_values(path, source.header_line, layout)
+    if values is None or _sample_fault(values, layout) is not None:
+        values, line_numbers = _scan_values(path, label, source.header_line, layout)
+        _raise_sample_fault(values, line_numbers, layout, label)
+    return values
 
 
 def load_trajectory(path: str | Path) -> Trajectory:
     """Load and validate a trajectory: CSV (DESIGN §4), or Parquet or Arrow IPC (Feather)
     with the same columns (by the name's ending, model/columnar.py). Raises ReachgateError
-    on bad input.
+    on bad input, naming the file, the line (CSV) or row (columnar) and the column.
 
     Returns t_s (N,), scenario_p_m (N, 3) in m and scenario_q_wxyz (N, 4) unit quaternions;
     name is the file name, ignored_columns the header names that were not read.
     """
     path = Path(path)
     label = str(path)
-    if is_columnar(path):
-        return _load_columnar(path, label)
-    header_line, names = _read_header(path, label)
+    source = _open_source(path, label)
     try:
-        columns = _map_columns(names)
+        columns = _map_columns(list(source.names))
     except _HeaderError as error:
-        where = f", column {error.column}" if error.column else ""
-        hint = _several_bodies_hint(names)
-        raise ReachgateError(f"{label} line {header_line}{where}: {error.text}{hint}") from None
-    quaternion_at = 4 if columns.has_quaternion else None
-    values = _fast_values(path, header_line, columns)
-    if values is None or _first_fault(values, quaternion_at) is not None:
-        values, line_numbers = _scan_values(path, label, header_line, columns)
-        _raise_sample_fault(values, line_numbers, columns, label)
-    return _trajectory_from_values(values, columns, path.name)
-
-
-def _load_columnar(path: Path, label: str) -> Trajectory:
-    """A Parquet or Arrow IPC trajectory: the CSV's columns and rules, faults named by row."""
-    table = read_table(path, label)
-    names = [str(name).strip() for name in table.column_names]
-    try:
-        columns = _map_columns(names)
-    except _HeaderError as error:
-        where = f", column {error.column}" if error.column else ""
-        raise ReachgateError(f"{label}{where}: {error.text}") from None
-    values = column_values(table, columns.names, columns.use, label)
-    if values.shape[0] < 2:
-        raise ReachgateError(f"{label}: {values.shape[0]} rows; a trajectory needs at least 2")
-    fault = _first_fault(values, 4 if columns.has_quaternion else None)
-    if fault is not None:
-        row, col, text = fault
-        if columns.has_quaternion and col == 4:
-            where = "columns " + ",".join(_QUAT_COLUMNS)
-        else:
-            where = "column " + columns.names[columns.use[col]]
-        raise ReachgateError(f"{label} row {row + 1}, {where}: {text}")
+        hint = _several_bodies_hint(list(source.names))
+        raise source.header_fault(label, error, hint) from None
+    layout = _Layout(source.names, {PLAIN_BODY: columns})
+    values = _layout_values(path, label, source, layout)
     return _trajectory_from_values(values, columns, path.name)
 
 
@@ -846,93 +750,46 @@ def _map_bodies(names: list[str]) -> dict[str, _Columns]:
     return mapped
 
 
-def _earliest_body_fault(
-    values: np.ndarray, line_numbers: list[int] | None, bodies: dict[str, _Columns], label: str
-) -> str | None:
-    """The message of the earliest broken rule over every body's columns, or None.
-
-    values: (N, 1 + the bodies' used columns, in order) with time first.
-    """
-    faults = []
-    at = 1
-    for columns in bodies.values():
-        width = len(columns.use) - 1
-        fault = _first_fault(
-            np.column_stack([values[:, 0], values[:, at : at + width]]),
-            4 if columns.has_quaternion else None,
-        )
-        if fault is not None:
-            row, col, text = fault
-            if columns.has_quaternion and col == 4:
-                where = "columns " + ",".join(columns.names[i] for i in columns.use[4:8])
-            else:
-                where = "column " + columns.names[columns.use[col]]
-            faults.append((row, where, text))
-        at += width
-    if not faults:
-        return None
-    row, where, text = min(faults, key=lambda f: f[0])
-    line = f" line {line_numbers[row]}" if line_numbers is not None else ""
-    return f"{label}{line}, {where}: {text}"
-
-
 def load_scenario(path: str | Path) -> Scenario:
-    """Load and validate a scenario CSV of one or more bodies (DESIGN §4, §8).
+    """Load and validate a scenario of one or more bodies (DESIGN §4, §8): CSV, or Parquet or
+    Arrow IPC (Feather) with the same columns.
 
     Plain columns (`x_m`, `qw`, ...) give one body, loaded exactly as load_trajectory does, under
     PLAIN_BODY. Columns prefixed with a body name and a dot (`drone.x_m`, `pad.qw`) give one
     body each, with the single-body column choices and rules; other columns are kept out and
-    named in ignored_columns. A Parquet or Arrow IPC file gives one body (plain columns), as
-    load_trajectory reads it. Raises ReachgateError naming file, line and column.
+    named in ignored_columns. Raises ReachgateError naming the file, the line (CSV) or row
+    (columnar) and the column.
     """
     path = Path(path)
     label = str(path)
-    if is_columnar(path):  # Parquet or Arrow IPC: one body, plain columns
-        trajectory = load_trajectory(path)
-        return Scenario(
-            t_s=trajectory.t_s,
-            bodies={PLAIN_BODY: trajectory},
-            name=trajectory.name,
-            ignored_columns=trajectory.ignored_columns,
-        )
-    header_line, names = _read_header(path, label)
+    source = _open_source(path, label)
+    names = list(source.names)
     try:
         has_bodies = bool(_body_columns(names))
-        bodies = _map_bodies(names) if has_bodies else {}
+        bodies = _map_bodies(names) if has_bodies else {PLAIN_BODY: _map_columns(names)}
     except _HeaderError as error:
-        where = f", column {error.column}" if error.column else ""
-        raise ReachgateError(f"{label} line {header_line}{where}: {error.text}") from None
+        raise source.header_fault(label, error) from None
+    layout = _Layout(source.names, bodies)
+    values = _layout_values(path, label, source, layout)
     if not has_bodies:
-        trajectory = load_trajectory(path)
+        trajectory = _trajectory_from_values(values, bodies[PLAIN_BODY], path.name)
         return Scenario(
             t_s=trajectory.t_s,
             bodies={PLAIN_BODY: trajectory},
             name=trajectory.name,
             ignored_columns=trajectory.ignored_columns,
         )
-    t_index = names.index(_TIME_COLUMN)
-    use = (t_index, *(i for columns in bodies.values() for i in columns.use[1:]))
-    read = _Columns(names=tuple(names), use=use, length_scale=1.0, angle_scale=1.0, ignored=())
-    values = _fast_values(path, header_line, read)
-    if values is None or _earliest_body_fault(values, None, bodies, label) is not None:
-        values, line_numbers = _scan_values(path, label, header_line, read)
-        message = _earliest_body_fault(values, line_numbers, bodies, label)
-        if message is not None:
-            raise ReachgateError(message)
     t_s = np.ascontiguousarray(values[:, 0])
     trajectories = {}
     at = 1
     for body, columns in bodies.items():
-        p_m = values[:, at : at + 3] * columns.length_scale
-        if columns.has_quaternion:
-            q = _normalised(values[:, at + 3 : at + 7])
-        else:
-            q = rpy_to_quat(values[:, at + 3 : at + 6] * columns.angle_scale)
-        at += len(columns.use) - 1
-        trajectories[body] = Trajectory(
-            t_s=t_s, scenario_p_m=p_m, scenario_q_wxyz=q, name=f"{path.name} ({body})"
+        width = len(columns.use) - 1
+        own = _trajectory_from_values(
+            values[:, [0, *range(at, at + width)]], columns, f"{path.name} ({body})"
         )
-    used = set(use)
+        trajectories[body] = replace(own, t_s=t_s, ignored_columns=())
+        at += width
+    used = set(layout.use)
     ignored = tuple(n for i, n in enumerate(names) if i not in used)
     return Scenario(t_s=t_s, bodies=trajectories, name=path.name, ignored_columns=ignored)
 

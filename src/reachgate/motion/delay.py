@@ -33,8 +33,9 @@ from pathlib import Path
 import numpy as np
 
 from reachgate.errors import ReachgateError
+from reachgate.model.csv_text import read_header
 from reachgate.model.joint_log import JointLog, load_joint_log
-from reachgate.model.trajectory import Trajectory, _read_header, load_trajectory
+from reachgate.model.trajectory import Trajectory, load_trajectory
 from reachgate.model.transforms import quat_to_matrix, rotation_log
 from reachgate.version import __version__
 
@@ -211,7 +212,7 @@ def model_phase_rad(frequency_hz, delay_s: float, time_constant_s: float) -> np.
 
 def _is_pose_log(path: Path) -> bool:
     """A pose log (DESIGN §4) has position columns x_m or x_mm; else it is an axis log."""
-    _, header = _read_header(path, str(path))
+    _, header = read_header(path, str(path))
     return "x_m" in header or "x_mm" in header
 
 
