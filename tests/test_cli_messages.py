@@ -131,6 +131,11 @@ def test_usage_errors_are_one_line(args, phrase):
         ("vmax_deg_s = 110.0", "vmax_deg_s = 1e-9", "at least 0.01 deg/s"),
         ("range_m = [0.0, 9.0]", "range_m = [0.0, 1e6]", "rail.range_m: 1e+06 m"),
         ("amax_m_s2 = 2.0", "amax_m_s2 = 1e9", "at most 1000 m/s^2"),
+        (
+            "shoulder_min_m = 0.05",
+            "shoulder_min_m = 0.05\nposition_margin_mm = 1e300",
+            "thresholds.position_margin_mm: 1e+300 mm is not plausible",
+        ),
     ],
 )
 def test_absurd_robot_values_are_refused_with_the_bound_and_why(tmp_path, old, new, named):

@@ -234,6 +234,7 @@ class PlausibleBound:
 #: standard). They catch 1e300 or a limit of 1e-9, never a real cell.
 PLAUSIBLE = {
     "m": PlausibleBound(0.0, 100.0, "long rails and gantries run to a few tens of metres"),
+    "mm": PlausibleBound(0.0, 1e5, "long rails and gantries run to a few tens of metres"),
     "deg": PlausibleBound(0.0, 3600.0, "ten turns; even endless axes are given a few turns"),
     "deg_s": PlausibleBound(0.01, 1e4, "industrial joints run at about 1 to 1000 deg/s"),
     "deg_s2": PlausibleBound(0.01, 1e6, "industrial joints accelerate at about 10 to 10^5 deg/s^2"),
