@@ -143,6 +143,18 @@ def test_absurd_robot_values_are_refused_with_the_bound_and_why(tmp_path, old, n
     refused(run("robot", robot), "robot.toml", named, "check the value and its unit")
 
 
+@pytest.mark.parametrize(
+    ("place", "named"),
+    [
+        ("1e300,0,0,0,0,0", "--place: x 1e+300 m is beyond the plausible ±1000 m"),
+        ("0,0,-1000.001,0,0,0", "--place: z -1000.001 m is beyond"),
+        ("0,0,0,0,0,4e5", "--place: yaw 400000 deg is beyond the plausible ±360000 deg"),
+    ],
+)
+def test_an_absurd_placement_is_refused_with_the_bound_and_why(place, named):
+    refused(run("check", DEMO_ROBOT, CALM, "--place", place), named, "for a robot cell (")
+
+
 def test_unicode_digits_are_refused_naming_line_and_column(tmp_path):
     lines = calm_lines()
     k = header_index(lines) + 3

@@ -424,7 +424,7 @@ def test_first_fault_in_file_order_is_reported(tmp_path):
          "1e+300 m is beyond the plausible ±1000 m for a robot cell"),
         (HEADER, "0.03,0.1,-1000.5,0.3,1,0,0,0", "column y_m", "-1000.5 m is beyond"),
         ("t_s,x_mm,y_mm,z_mm,qw,qx,qy,qz", "0.03,100,2e9,300,1,0,0,0", "column y_mm",
-         "2e+09 mm is beyond the plausible ±1e+06 mm (1000 m)"),
+         "2000000000 mm is beyond the plausible ±1e+06 mm (1000 m)"),
         (HEADER, "1e12,0.1,0.2,0.3,1,0,0,0", "column t_s",
          "1e+12 s is beyond the plausible ±1e+06 s"),
         (HEADER, "0.020000000000001,0.1,0.2,0.3,1,0,0,0", "column t_s",
@@ -447,7 +447,8 @@ def test_values_beyond_the_plausible_bounds_are_refused_with_the_bound_and_why(
 
 
 def test_values_at_the_plausible_bounds_are_taken(tmp_path):
-    """The bounds themselves are inside: ±1000 m, ±1e6 s, a 1 µs step."""
+    """The bounds themselves are inside, in every unit: ±1000 m (±1e6 mm), ±1e6 s, a 1 µs
+    step, ±360000 deg."""
     lines = [
         HEADER,
         "-1e6,1000,-1000,0,1,0,0,0",
@@ -457,6 +458,10 @@ def test_values_at_the_plausible_bounds_are_taken(tmp_path):
     trajectory = load_trajectory(csv(tmp_path, lines))
     assert trajectory.scenario_p_m[0].tolist() == [1000.0, -1000.0, 0.0]
     assert trajectory.t_s.tolist() == [-1e6, -999999.999999, 1e6]
+    header = "t_s,x_mm,y_mm,z_mm,roll_deg,pitch_deg,yaw_deg"
+    lines = [header, "0,1e6,0,-1e6,0,-360000,360000", "1,0,0,0,0,0,0"]
+    trajectory = load_trajectory(csv(tmp_path, lines, name="units.csv"))
+    assert trajectory.scenario_p_m[0].tolist() == [1000.0, 0.0, -1000.0]
 
 
 # --- from_arrays --------------------------------------------------------------------------

@@ -43,6 +43,7 @@ from reachgate.kinematics.chain import arm_manipulability
 from reachgate.kinematics.path_ik import PathSolution, solve_trajectory
 from reachgate.kinematics.singularity import conditioning, singularity_kinds
 from reachgate.model.robot import Robot
+from reachgate.model.samples import angle_rule, length_rule, out_of_bound
 from reachgate.model.trajectory import Trajectory
 from reachgate.model.transforms import transform_from_xyz_rpy
 from reachgate.version import __version__
@@ -101,6 +102,12 @@ class Placement:
             raise ReachgateError(
                 f"--place: expected six numbers 'x,y,z,roll,pitch,yaw' (m, deg), got {text!r}"
             )
+        rules = (length_rule("m", 1.0),) * 3 + (angle_rule("deg", math.pi / 180.0),) * 3
+        names = ("x", "y", "z", "roll", "pitch", "yaw")
+        for name, value, rule in zip(names, values, rules, strict=True):
+            fault = out_of_bound(value, rule)
+            if fault is not None:
+                raise ReachgateError(f"--place: {name} {fault}")
         return cls(tuple(values[:3]), tuple(math.radians(v) for v in values[3:]))
 
     def cell_T_scenario(self) -> np.ndarray:

@@ -67,6 +67,11 @@ STEP_WHY = (
 )
 
 
+#: A bound converted into another unit (deg, mm) is rounded: values within this fraction
+#: beyond it are in, so that the bound as written in any unit (360000 deg) is inside.
+_BOUND_SLACK = 1e-12
+
+
 @dataclass(frozen=True)
 class ColumnRule:
     """The bound of one column as given: its values times scale are in bound.unit.
@@ -77,6 +82,11 @@ class ColumnRule:
     bound: SampleBound
     unit: str
     scale: float = 1.0
+
+    @property
+    def limit(self) -> float:
+        """The largest magnitude in the column's own unit."""
+        return self.bound.highest / self.scale * (1.0 + _BOUND_SLACK)
 
 
 TIME_RULE = ColumnRule(TIME_BOUND, "s")
@@ -111,7 +121,7 @@ def first_fault(
         row, col = divmod(int(np.argmin(finite.ravel())), values.shape[1])
         return row, col, f"{float(values[row, col])!r} is not a finite number"
     faults: list[tuple[int, int, str]] = []
-    limits = np.array([np.inf if r is None else r.bound.highest / r.scale for r in rules])
+    limits = np.array([np.inf if r is None else r.limit for r in rules])
     beyond = np.abs(values) > limits
     if beyond.any():
         row, col = divmod(int(np.argmax(beyond.ravel())), values.shape[1])
@@ -139,13 +149,21 @@ def first_fault(
     return min(faults, key=lambda f: f[0]) if faults else None
 
 
+def out_of_bound(value: float, rule: ColumnRule) -> str | None:
+    """What is wrong with one value given in rule.unit beyond its bound, or None (for a
+    value given outside a file, such as an option)."""
+    if abs(value) > rule.limit:
+        return _beyond_text(value, rule)
+    return None
+
+
 def _beyond_text(value: float, rule: ColumnRule) -> str:
     bound = rule.bound
     shown = f"±{bound.highest / rule.scale:g} {rule.unit}"
     if rule.unit != bound.unit:
         shown += f" ({bound.highest:g} {bound.unit})"
     return (
-        f"{value:g} {rule.unit} is beyond the plausible {shown} for a robot cell ({bound.why}); "
+        f"{value:.12g} {rule.unit} is beyond the plausible {shown} for a robot cell ({bound.why}); "
         "check the value and its unit"
     )
 
