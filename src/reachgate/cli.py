@@ -794,7 +794,8 @@ def _case_labels(paths) -> list[str]:
 
 @app.command("place")
 def place_command(
-    robot: Annotated[Path, typer.Argument(help="Robot description (TOML).")],
+    ctx: typer.Context,
+    robot: Annotated[Path, typer.Argument(help="Robot description or rig file (TOML).")],
     cases: Annotated[
         list[str],
         typer.Argument(
@@ -806,7 +807,7 @@ def place_command(
         typer.Option(
             "--vary",
             help="What may change and how far: 'x=-1:1,y=-2:2,yaw=-45:45' (x y z m, roll "
-            "pitch yaw deg, rail_at m, bandwidth Hz).",
+            "pitch yaw deg, rail_at m, bandwidth Hz; a rig's rails: carrier.rail_at, ...).",
         ),
     ],
     place: PlaceOption = None,
@@ -817,6 +818,7 @@ def place_command(
     lag_tol: LagTolOption = None,
     lag_tol_deg: LagTolDegOption = None,
     predict: PredictOption = None,
+    ends: EndsOption = EndsMode.rest,
     seed: Annotated[int, typer.Option("--seed", help="Seed of the search (repeatable).")] = 0,
     workers: WorkersOption = None,
     cluster: ClusterOption = None,
@@ -841,8 +843,9 @@ def place_command(
     from contextlib import nullcontext
 
     from reachgate.batch.scan import discover_cases
-    from reachgate.model.robot import load_robot
-    from reachgate.model.trajectory import load_trajectory
+    from reachgate.checking.rig_check import RailChoice, rig_rails
+    from reachgate.model.rig import load_rig
+    from reachgate.model.trajectory import load_scenario, load_trajectory
     from reachgate.render.place_report import ProgressLine, render_placement
     from reachgate.search.placement import place as search_placement
     from reachgate.search.vary import check_variations, parse_vary
@@ -868,19 +871,32 @@ def place_command(
         _fail_bad_input("--workers and --cluster: give one (the cluster has its own workers)")
     settings = _guarded(
         lambda: settings_from_options(
-            place, rail, rail_at, rail_bandwidth, lag, lag_tol, lag_tol_deg, predict
+            place, rail, rail_at, rail_bandwidth, lag, lag_tol, lag_tol_deg, predict, ends
         )
     )
     if cluster:
         _quiet_dask_logging()
-    model = _guarded(lambda: load_robot(robot))
-    _guarded(lambda: check_variations(model, settings, variations))
+    rig = _guarded(lambda: load_rig(robot))
+    rails = None
+    if rig.alone:
+        model, inputs = rig.robots[0].robot, {"robot file": robot}
+    else:  # a rig: the rail options, when given, apply to every robot with a rail (as in check)
+        model = rig
+        inputs = {"rig file": robot, **{f"robot file of {r.name}": Path(r.robot.source)
+                                        for r in rig.robots}}  # fmt: skip
+        if _given(ctx, "rail", "rail_at", "rail_bandwidth"):
+            rails = RailChoice(settings.rail, settings.rail_at_m, settings.rail_bandwidth_hz)
+    _guarded(
+        lambda: check_variations(
+            model, settings, variations, None if rig.alone else rig_rails(rig, rails)
+        )
+    )
     paths = _guarded(lambda: discover_cases(cases))
     _refuse_overwriting_inputs(
-        {"--out": out, "--map": map_png},
-        {"robot file": robot, **{f"case {p.name}": p for p in paths}},
+        {"--out": out, "--map": map_png}, {**inputs, **{f"case {p.name}": p for p in paths}}
     )
-    paths_loaded = [_guarded(lambda p=p: load_trajectory(p)) for p in paths]
+    load_case = load_trajectory if rig.alone else load_scenario
+    paths_loaded = [_guarded(lambda p=p: load_case(p)) for p in paths]
     show = nullcontext(None) if quiet or not sys.stderr.isatty() else ProgressLine()
     with show as progress:
         result = _guarded(
@@ -889,6 +905,7 @@ def place_command(
                 paths_loaded,
                 variations,
                 settings,
+                rails=rails,
                 labels=_case_labels(paths),
                 seed=seed,
                 workers=workers or os.cpu_count() or 1,

@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import json
 import math
+from collections.abc import Mapping
 from dataclasses import dataclass, field, replace
 
 import numpy as np
@@ -20,6 +21,7 @@ from reachgate.checking.clearance import (
     ClearanceResult,
     ClearanceSettings,
     LeftOut,
+    PairPlan,
     PlacedRobot,
     check_clearance,
     plan_pairs,
@@ -133,27 +135,44 @@ def _finite_or_none(margins: dict) -> dict:
     }
 
 
-def robot_settings(placed: RigRobot, settings: CheckSettings, rails: RailChoice | None):
+#: The rails of a rig's check: one choice for every robot with a rail, or a choice per robot
+#: name (robots left out keep the rig file's), or None (the rig file's for every robot).
+Rails = RailChoice | Mapping[str, RailChoice] | None
+
+
+def rail_choice(placed: RigRobot, rails: Rails) -> RailChoice:
+    """The rail policy a robot of the rig is checked with: `rails` (its own entry when a
+    mapping) if given, else the rig file's, else fixed at home (also for a robot without a
+    rail, whose policy nothing reads)."""
+    if isinstance(rails, Mapping):
+        rails = rails.get(placed.name)
+    if placed.robot.rail is None:
+        return RailChoice()
+    if rails is not None:
+        return rails
+    if placed.rail is not None:
+        return RailChoice(
+            RailPolicy(placed.rail.policy),
+            placed.rail.at_m,
+            placed.rail.bandwidth_hz or DEFAULT_BANDWIDTH_HZ,
+        )
+    return RailChoice()
+
+
+def rig_rails(rig: Rig, rails: Rails = None) -> dict[str, RailChoice]:
+    """The rail policy of every robot of the rig that has a rail (rail_choice): name -> it."""
+    return {p.name: rail_choice(p, rails) for p in rig.robots if p.robot.rail is not None}
+
+
+def robot_settings(placed: RigRobot, settings: CheckSettings, rails: Rails):
     """The one-robot settings of a robot of the rig: the scenario placed in its cell frame
-    (cell_T_scenario = cell_T_rig · rig_T_scenario) and its rail policy (`rails` if given,
-    else the rig file's, else fixed at home)."""
+    (cell_T_scenario = cell_T_rig · rig_T_scenario) and its rail policy (rail_choice)."""
     cell_T_scenario = invert_transform(placed.rig_T_cell) @ settings.placement.cell_T_scenario()
     placement = Placement(
         tuple(float(v) for v in cell_T_scenario[:3, 3]),
         tuple(float(v) for v in matrix_to_rpy(cell_T_scenario[:3, :3])),
     )
-    if placed.robot.rail is None:
-        rail = RailChoice()
-    elif rails is not None:
-        rail = rails
-    elif placed.rail is not None:
-        rail = RailChoice(
-            RailPolicy(placed.rail.policy),
-            placed.rail.at_m,
-            placed.rail.bandwidth_hz or DEFAULT_BANDWIDTH_HZ,
-        )
-    else:
-        rail = RailChoice()
+    rail = rail_choice(placed, rails)
     return replace(
         settings,
         placement=placement,
@@ -177,15 +196,27 @@ def placed_robots(rig: Rig) -> tuple[PlacedRobot, ...]:
     return tuple(PlacedRobot(r.name, r.robot, r.rig_T_cell) for r in rig.robots)
 
 
+def rig_pairs(rig: Rig) -> PairPlan:
+    """The pairs of shapes the rig's clearance check measures, and those it leaves out (they
+    depend on the rig alone, not on the scenario or its placement)."""
+    return plan_pairs(placed_robots(rig), rig.obstacles, clearance_settings(rig))
+
+
 def check_rig(
     rig: Rig,
     scenario: Scenario,
     settings: CheckSettings | None = None,
-    rails: RailChoice | None = None,
+    rails: Rails = None,
+    *,
+    verify_slowdown: bool = True,
+    plan: PairPlan | None = None,
 ) -> RigReport:
     """Check every robot of the rig on its body of the scenario, and the clearance of every
     pair of shapes. settings: placement of the scenario in the rig frame, loop delay; its rail
-    fields are not read (rails: one choice for every robot with a rail, else the rig file's).
+    fields are not read (rails: one choice for every robot with a rail, or one per robot name,
+    else the rig file's). verify_slowdown=False: the robots' slow-down factors are the scaling
+    law's, not measured on the stretched case (checking.pipeline.check), as a search needs.
+    plan: the rig's pairs (rig_pairs(rig)), for callers that check one rig many times.
     """
     settings = settings or CheckSettings()
     bodies = rig.bodies(scenario)
@@ -199,7 +230,9 @@ def check_rig(
         notes.append(f"columns kept out of the check: {', '.join(scenario.ignored_columns)}")
     for placed in rig.robots:
         used[placed.name] = robot_settings(placed, settings, rails)
-        report = check(placed.robot, bodies[placed.name], used[placed.name])
+        report = check(
+            placed.robot, bodies[placed.name], used[placed.name], verify_slowdown=verify_slowdown
+        )
         reports[placed.name] = report
 
         def named(axis: str, robot: str = placed.name) -> str:
@@ -218,7 +251,7 @@ def check_rig(
     clearance = None
     robots = placed_robots(rig)
     limits = clearance_settings(rig)
-    plan = plan_pairs(robots, rig.obstacles, limits)
+    plan = plan_pairs(robots, rig.obstacles, limits) if plan is None else plan
     if plan.checked:
         clearance = check_clearance(
             scenario.t_s,
@@ -280,7 +313,7 @@ def check_any(
     model: Robot | Rig,
     case: Trajectory | Scenario,
     settings: CheckSettings | None = None,
-    rails: RailChoice | None = None,
+    rails: Rails = None,
 ) -> Report | RigReport:
     """One check of a robot or a rig (the library's `reachgate.check`).
 

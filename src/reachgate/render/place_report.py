@@ -22,9 +22,42 @@ def _values_text(result: PlacementResult, c: Candidate) -> str:
     )
 
 
+def _rail_options(choice) -> str:
+    """`check`'s rail options that give this rail choice."""
+    if choice.policy.value == "follow":
+        return f"--rail follow --rail-bandwidth {short_number(choice.bandwidth_hz, 3)}"
+    at = "" if choice.at_m is None else f" --rail-at {short_number(choice.at_m, 3)}"
+    return f"--rail fixed{at}"
+
+
+def _rig_rail_text(result: PlacementResult, c: Candidate) -> str:
+    """What `check RIG` needs besides --place to check a rig at this candidate: nothing when
+    its rails are the rig file's; the rail options when every robot with a rail takes the
+    same choice (they apply to all of them); else each robot's rail for the rig file."""
+    own = dict(result.file_rails or ())
+    changed = {name: choice for name, choice in c.rails if own.get(name) != choice}
+    if not changed:
+        return ""
+    choices = {choice for _, choice in c.rails}
+    if len(choices) == 1:
+        return " " + _rail_options(next(iter(choices)))
+    parts = []
+    for name, choice in changed.items():
+        value = (
+            f'policy = "follow", bandwidth_hz = {short_number(choice.bandwidth_hz, 3)}'
+            if choice.policy.value == "follow"
+            else 'policy = "fixed"'
+            + ("" if choice.at_m is None else f", at_m = {short_number(choice.at_m, 3)}")
+        )
+        parts.append(f"{name}: rail = {{ {value} }}")
+    return f" (in the rig file: {'; '.join(parts)})"
+
+
 def _option_text(result: PlacementResult, c: Candidate) -> str:
-    """The ready options: --place, and the varied rail option."""
+    """The ready options: --place, and the varied rail option (a rig: see _rig_rail_text)."""
     text = f'--place "{c.place}"'
+    if c.rails is not None:
+        return text + _rig_rail_text(result, c)
     names = {v.name for v in result.vary}
     if "rail_at" in names:
         text += f" --rail-at {short_number(c.settings.rail_at_m, 3)}"
@@ -37,7 +70,8 @@ def render_table(result: PlacementResult) -> str:
     ranges = ", ".join(f"{v.name} {v.low:g}..{v.high:g} {v.unit}" for v in result.vary)
     n = len(result.cases)
     lines = [
-        f"placement search: {result.robot}, {n} case{'s' if n != 1 else ''}, varying {ranges}",
+        f"placement search: {'rig ' if result.rig else ''}{result.robot}, "
+        f"{n} case{'s' if n != 1 else ''}, varying {ranges}",
         "score: the worst margin over every case, check and axis, as a fraction of its limit "
         "(0 at the limit, < 0 beyond); see README",
     ]

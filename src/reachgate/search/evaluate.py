@@ -1,9 +1,10 @@
 """Scoring placements on cases: in this process, in local worker processes, or on the workers
 of an existing Dask scheduler (the batch layer's machinery for starting and stopping them).
 
-A *task* is one placement (its CheckSettings) on one case at one time step: the case's every
-`step`-th sample (and its last), step 1 being the full case. Workers hold the robot and the
-cases once and keep the thinned copies they made.
+A *task* is one placement (its CheckSettings, and for a rig each robot's rail) on one case
+at one time step: the case's every `step`-th sample (and its last), step 1 being the full
+case. Workers hold the robot (or rig) and the cases once and keep the thinned copies they
+made. A rig's case is a Scenario, checked by the rig check (every robot and clearance).
 """
 
 from __future__ import annotations
@@ -24,23 +25,35 @@ from reachgate.batch.scan import (
 )
 from reachgate.batch.worker_process import steady_worker
 from reachgate.checking.pipeline import CheckSettings, check
+from reachgate.checking.rig_check import RailChoice, check_rig, rig_pairs
 from reachgate.errors import ReachgateError
+from reachgate.model.rig import Rig
 from reachgate.model.robot import Robot
-from reachgate.model.trajectory import Trajectory
+from reachgate.model.trajectory import Scenario, Trajectory
 from reachgate.search.score import Binding, arm_span_m, report_binding
 
 #: Tasks are handed to the workers in about this many chunks per worker: enough to even out
 #: unequal cases, few enough that a chunk's hand-over costs little beside its checks.
 CHUNKS_PER_WORKER = 2
+#: A case: a robot's trajectory, or a rig's scenario.
+Cases = Trajectory | Scenario
 
 
-def thinned(trajectory: Trajectory, step: int) -> Trajectory:
-    """Every `step`-th sample of a case, and always its last one (step 1: the case itself)."""
+def thinned(trajectory: Trajectory | Scenario, step: int) -> Trajectory | Scenario:
+    """Every `step`-th sample of a case, and always its last one (step 1: the case itself);
+    of a scenario, of every body at the same times."""
     if step <= 1:
         return trajectory
     keep = np.arange(0, trajectory.n_samples, step)
     if keep[-1] != trajectory.n_samples - 1:
         keep = np.append(keep, trajectory.n_samples - 1)
+    if isinstance(trajectory, Scenario):
+        bodies = {name: _kept(body, keep) for name, body in trajectory.bodies.items()}
+        return replace(trajectory, t_s=trajectory.t_s[keep], bodies=bodies)
+    return _kept(trajectory, keep)
+
+
+def _kept(trajectory: Trajectory, keep: np.ndarray) -> Trajectory:
     return replace(
         trajectory,
         t_s=trajectory.t_s[keep],
@@ -51,9 +64,13 @@ def thinned(trajectory: Trajectory, step: int) -> Trajectory:
 
 @dataclass(frozen=True)
 class Task:
+    """settings: the placement and check options; rails: a rig's robots' rails (name,
+    policy), None for a robot (its rail is in settings)."""
+
     settings: CheckSettings
     case: int
     step: int
+    rails: tuple[tuple[str, RailChoice], ...] | None = None
 
 
 @dataclass(frozen=True)
@@ -65,19 +82,29 @@ class Outcome:
 
 
 class _Cases:
-    """The robot, the cases and their thinned copies, as one worker holds them."""
+    """The robot (or rig), the cases and their thinned copies, as one worker holds them."""
 
-    def __init__(self, robot: Robot, cases: Sequence[Trajectory], labels: Sequence[str]):
+    def __init__(self, robot: Robot | Rig, cases: Sequence[Cases], labels: Sequence[str]):
         self.robot, self.cases, self.labels = robot, list(cases), list(labels)
-        self.span_m = arm_span_m(robot)
-        self._thinned: dict[tuple[int, int], Trajectory] = {}
+        if isinstance(robot, Rig):
+            self.span_m = {p.name: arm_span_m(p.robot) for p in robot.robots}
+            self.pairs = rig_pairs(robot)
+        else:
+            self.span_m = arm_span_m(robot)
+        self._thinned: dict[tuple[int, int], Trajectory | Scenario] = {}
 
     def run(self, task: Task) -> Outcome:
         key = (task.case, task.step)
         path = self._thinned.get(key)
         if path is None:
             path = self._thinned[key] = thinned(self.cases[task.case], task.step)
-        report = check(self.robot, path, task.settings, verify_slowdown=False)
+        if isinstance(self.robot, Rig):
+            rails = None if task.rails is None else dict(task.rails)
+            report = check_rig(
+                self.robot, path, task.settings, rails, verify_slowdown=False, plan=self.pairs
+            )
+        else:
+            report = check(self.robot, path, task.settings, verify_slowdown=False)
         return Outcome(report_binding(report, self.span_m, self.labels[task.case]), report.passed)
 
     def run_all(self, tasks: Sequence[Task]) -> list[Outcome]:
@@ -123,8 +150,8 @@ class Evaluator:
 
     def __init__(
         self,
-        robot: Robot,
-        cases: Sequence[Trajectory],
+        robot: Robot | Rig,
+        cases: Sequence[Cases],
         labels: Sequence[str],
         *,
         workers: int = 1,
@@ -195,10 +222,18 @@ class Evaluator:
         return [outcome for part in parts for outcome in part]
 
     def scores(
-        self, settings: Sequence[CheckSettings], cases: Sequence[int], steps: Sequence[int]
+        self,
+        settings: Sequence[CheckSettings],
+        cases: Sequence[int],
+        steps: Sequence[int],
+        rails: Sequence[tuple | None] | None = None,
     ) -> list[list[Outcome]]:
-        """Outcomes (len(settings), len(cases)): each placement on each case at its step."""
-        tasks = [Task(s, c, steps[c]) for s in settings for c in cases]
+        """Outcomes (len(settings), len(cases)): each placement on each case at its step.
+        rails: a rig's rails for each placement (Task.rails), default None."""
+        rails = [None] * len(settings) if rails is None else rails
+        tasks = [
+            Task(s, c, steps[c], r) for s, r in zip(settings, rails, strict=True) for c in cases
+        ]
         flat = self.run(tasks)
         n = len(cases)
         return [flat[i * n : (i + 1) * n] for i in range(len(settings))]

@@ -18,21 +18,33 @@ The search, for one case or a batch, maximises the score (search/score.py) over 
 4. Finalists: the polished point and the best of the last population, rounded to the
    printed precision, are checked in full on every case; the best of them is the answer
    (the starting placement too, when it lies inside the ranges and scores higher).
+
+A rig is searched the same way on its scenarios: each placement is checked by the rig check
+(every robot's own checks and the clearance of every pair), so clearance margins enter the
+score; the placement is that of the scenario frame in the rig frame (search/vary.py).
 """
 
 from __future__ import annotations
 
 import json
 from collections.abc import Callable, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 import numpy as np
 
 from reachgate.checking.pipeline import CheckSettings
+from reachgate.checking.rig_check import RailChoice, rig_rails
 from reachgate.errors import ReachgateError
+from reachgate.model.rig import Rig
 from reachgate.model.robot import Robot
-from reachgate.model.trajectory import Trajectory, load_trajectory
+from reachgate.model.trajectory import (
+    PLAIN_BODY,
+    Scenario,
+    Trajectory,
+    load_scenario,
+    load_trajectory,
+)
 from reachgate.search.evaluate import Evaluator, Outcome
 from reachgate.search.score import Binding, worst_of
 from reachgate.search.vary import (
@@ -40,6 +52,7 @@ from reachgate.search.vary import (
     check_variations,
     parse_vary,
     place_argument,
+    rails_at,
     rounded,
     settings_at,
     short_number,
@@ -78,13 +91,15 @@ class Candidate:
     """One placement checked in full on every case.
 
     values: the varied quantities (user units, in --vary order); binding: the worst margin
-    over every case; passed: every case's check passed and the score is above 0.
+    over every case; passed: every case's check passed and the score is above 0; rails: a
+    rig's robots' rails (name, policy), None for a robot (its rail is in settings).
     """
 
     values: tuple[float, ...]
     settings: CheckSettings
     binding: Binding
     passed: bool
+    rails: tuple[tuple[str, RailChoice], ...] | None = None
 
     @property
     def score(self) -> float:
@@ -95,11 +110,26 @@ class Candidate:
         return place_argument(self.settings.placement)
 
     def as_dict(self, vary: Sequence[Variation]) -> dict:
+        if self.rails is None:
+            rails = {
+                "rail_at_m": self.settings.rail_at_m,
+                "rail_bandwidth_hz": self.settings.rail_bandwidth_hz,
+            }
+        else:
+            rails = {
+                "rails": {
+                    name: {
+                        "rail": choice.policy.value,
+                        "rail_at_m": choice.at_m,
+                        "rail_bandwidth_hz": choice.bandwidth_hz,
+                    }
+                    for name, choice in self.rails
+                }
+            }
         return {
             "place": self.place,
             "values": {v.name: x for v, x in zip(vary, self.values, strict=True)},
-            "rail_at_m": self.settings.rail_at_m,
-            "rail_bandwidth_hz": self.settings.rail_bandwidth_hz,
+            **rails,
             "passes": self.passed,
             **self.binding.as_dict(),
         }
@@ -126,6 +156,9 @@ class ScoreMap:
 class PlacementResult:
     """The outcome of a placement search (see the module docstring).
 
+    robot: the robot's (or the rig's) name; rig: True for a rig file (not a robot alone);
+    file_rails: a rig's rails as its file gives them (name, policy), what `check RIG` uses
+    without rail options.
     best, start: the found and the starting placement, each checked in full on every case.
     steps: the time step each case was searched at; binding_cases: the cases the search
     scored (a batch's binding cases); full_checks / thinned_checks: the case checks of the
@@ -145,6 +178,8 @@ class PlacementResult:
     placements_scored: int
     rounds: int
     score_map: ScoreMap | None = field(default=None, repr=False)
+    rig: bool = False
+    file_rails: tuple[tuple[str, RailChoice], ...] | None = None
 
     @property
     def passed(self) -> bool:
@@ -158,12 +193,13 @@ class PlacementResult:
         return {
             "tool_version": __version__,
             "robot": self.robot,
+            "rig": self.rig,
             "cases": list(self.cases),
             "vary": {v.name: [v.low, v.high] for v in self.vary},
             "verdict": "pass" if self.passed else "fail",
             "best": self.best.as_dict(self.vary),
             "start": self.start.as_dict(self.vary),
-            "settings": self.best.settings.as_dict(),
+            "settings": self._settings(),
             "search": {
                 "seed": self.seed,
                 "steps": dict(zip(self.cases, self.steps, strict=True)),
@@ -175,6 +211,14 @@ class PlacementResult:
                 "thinned_checks": self.thinned_checks,
             },
         }
+
+    def _settings(self) -> dict:
+        """The best placement's check settings; a rig's rails are in best.rails instead."""
+        settings = self.best.settings.as_dict()
+        if self.rig:
+            for key in ("rail", "rail_at_m", "rail_bandwidth_hz"):
+                settings.pop(key)
+        return settings
 
     def to_json(self, indent: int | None = 2) -> str:
         return json.dumps(self.as_dict(), indent=indent)
@@ -189,13 +233,17 @@ class PlaceProgress:
     best_score: float | None
 
 
-def _candidate(vary, values, settings, outcomes: Sequence[Outcome]) -> Candidate:
+#: One placement as the evaluator takes it: the settings and a rig's rails (None: a robot).
+Point = tuple[CheckSettings, tuple[tuple[str, RailChoice], ...] | None]
+
+
+def _candidate(values, point: Point, outcomes: Sequence[Outcome]) -> Candidate:
     binding = worst_of(o.binding for o in outcomes)
     passed = binding.score > 0 and all(o.passed for o in outcomes)
-    return Candidate(tuple(float(v) for v in values), settings, binding, passed)
+    return Candidate(tuple(float(v) for v in values), point[0], binding, passed, point[1])
 
 
-def _coarsest_step(trajectory: Trajectory) -> int:
+def _coarsest_step(trajectory: Trajectory | Scenario) -> int:
     """The coarsest of COARSE_STEPS that keeps MIN_THINNED_SAMPLES samples (else 1)."""
     fits = [k for k in COARSE_STEPS if trajectory.n_samples >= k * MIN_THINNED_SAMPLES]
     return fits[0] if fits else 1
@@ -207,12 +255,27 @@ def _finer(step: int) -> int:
     return finer[0] if finer else 1
 
 
+def _rig_cases(rig: Rig, cases) -> list[Scenario]:
+    """A rig's cases as scenarios (files read as scenarios; a trajectory is one plain body),
+    each holding every body the rig's robots follow (else ReachgateError naming it)."""
+    scenarios = []
+    for case in cases:
+        if isinstance(case, Trajectory):
+            case = Scenario.from_trajectories({PLAIN_BODY: case}, name=case.name)
+        elif not isinstance(case, Scenario):
+            case = load_scenario(case)
+        rig.bodies(case)
+        scenarios.append(case)
+    return scenarios
+
+
 def place(
-    robot: Robot,
-    cases: Sequence[Trajectory | str | Path],
+    robot: Robot | Rig,
+    cases: Sequence[Trajectory | Scenario | str | Path],
     vary: Sequence[Variation] | str,
     settings: CheckSettings | None = None,
     *,
+    rails: RailChoice | None = None,
     labels: Sequence[str] | None = None,
     seed: int = 0,
     workers: int = 1,
@@ -224,10 +287,13 @@ def place(
     """Find the placement (and rail position or bandwidth, where varied) with the largest
     worst margin over every case; see the module docstring for how.
 
-    cases: trajectories or their files; labels: their names in the result (default: their
-    names). vary: the quantities and their ranges, as Variations or the --vary text
-    ("x=-1:1,yaw=-45:45"); settings: the starting placement and
-    the other check options. seed: makes the search repeatable. workers: local processes
+    robot: a robot, or a rig (its placement: the scenario frame in the rig frame; its rail
+    quantities name their robot, "carrier.rail_at"). cases: trajectories, a rig's scenarios,
+    or their files; labels: their names in the result (default: their names). vary: the
+    quantities and their ranges, as Variations or the --vary text ("x=-1:1,yaw=-45:45");
+    settings: the starting placement and the other check options (a robot's rail too);
+    rails: a rig's rails, one choice for every robot with a rail (default: the rig file's),
+    as for the rig check. seed: makes the search repeatable. workers: local processes
     (1: this process); cluster: the address of a running Dask scheduler instead.
     map_quantities: indices into vary of two quantities whose score map to compute around the
     best, on map_points × map_points placements. Raises ReachgateError on bad input.
@@ -236,18 +302,38 @@ def place(
 
     settings = settings or CheckSettings()
     vary = parse_vary(vary) if isinstance(vary, str) else tuple(vary)
-    cases = [c if isinstance(c, Trajectory) else load_trajectory(c) for c in cases]
+    if isinstance(robot, Rig) and robot.alone:
+        robot = robot.robots[0].robot
+    base_rails = None
+    if isinstance(robot, Rig):
+        base_rails = rig_rails(robot, rails)
+    elif rails is not None:
+        settings = replace(settings, rail=rails.policy, rail_at_m=rails.at_m,
+                           rail_bandwidth_hz=rails.bandwidth_hz)  # fmt: skip
+    check_variations(robot, settings, vary, base_rails)
+    if isinstance(robot, Rig):
+        cases = _rig_cases(robot, cases)
+    else:
+        cases = [c if isinstance(c, Trajectory) else load_trajectory(c) for c in cases]
     if not cases:
         raise ReachgateError("place: give at least one case")
     labels = [c.name for c in cases] if labels is None else list(labels)
-    check_variations(robot, settings, vary)
+
+    def point_at(values) -> Point:
+        """The settings (and a rig's rails) at the varied quantities' values."""
+        at = settings_at(settings, vary, values)
+        return at, None if base_rails is None else rails_at(base_rails, vary, values)
+
+    def scored(points: Sequence[Point], cases_: Sequence[int], steps_: Sequence[int]):
+        return evaluator.scores([p[0] for p in points], cases_, steps_, [p[1] for p in points])
+
     if map_quantities is not None and len(set(map_quantities)) != 2:
         raise ReachgateError("--map: needs two different varied quantities")
     if map_points < 2:
         raise ReachgateError(f"--map-points: at least 2, got {map_points}")
     lows = np.array([v.low for v in vary])
     highs = np.array([v.high for v in vary])
-    start_values = starting_values(robot, settings, vary)
+    start_values = starting_values(robot, settings, vary, base_rails)
     start_inside = bool(np.all((start_values >= lows) & (start_values <= highs)))
     rng = np.random.default_rng(seed)
     placements_scored = 0
@@ -261,8 +347,9 @@ def place(
         every_case = list(range(len(cases)))
         full_steps = [1] * len(cases)
         report("checking the start", evaluator)
-        at_start = evaluator.scores([settings], every_case, full_steps)[0]
-        start = _candidate(vary, start_values, settings, at_start)
+        start_point = point_at(start_values)
+        at_start = scored([start_point], every_case, full_steps)[0]
+        start = _candidate(start_values, start_point, at_start)
         steps = [_coarsest_step(case) for case in cases]
         active = [min(every_case, key=lambda c: at_start[c].binding.score)]
 
@@ -270,9 +357,7 @@ def place(
             """Scores of placements (S, n_vary) on the binding cases at their steps."""
             nonlocal placements_scored
             placements_scored += len(values)
-            outcomes = evaluator.scores(
-                [settings_at(settings, vary, x) for x in values], active, steps
-            )
+            outcomes = scored([point_at(x) for x in values], active, steps)
             return np.array([min(o.binding.score for o in row) for row in outcomes])
 
         def objective(x_columns: np.ndarray) -> np.ndarray:
@@ -318,9 +403,8 @@ def place(
             best_x = polished.x if polished.fun <= found.fun else found.x
             best_so_far = -float(min(polished.fun, found.fun))
             # the best on the full cases: does each keep its thinned score, does another bind?
-            changed = _settle_steps(evaluator, settings_at(settings, vary, best_x), steps,
-                                    active, validated)  # fmt: skip
-            at_best = evaluator.scores([settings_at(settings, vary, best_x)], every_case, steps)[0]
+            changed = _settle_steps(scored, point_at(best_x), steps, active, validated)
+            at_best = scored([point_at(best_x)], every_case, steps)[0]
             others = [c for c in every_case if c not in active]
             if others:
                 worst = min(others, key=lambda c: at_best[c].binding.score)
@@ -333,11 +417,11 @@ def place(
 
         report("checking the finalists in full", evaluator)
         finalists = _finalists(vary, best_x, found.population, found.population_energies)
-        finalist_settings = [settings_at(settings, vary, x) for x in finalists]
-        full = evaluator.scores(finalist_settings, every_case, full_steps)
+        finalist_points = [point_at(x) for x in finalists]
+        full = scored(finalist_points, every_case, full_steps)
         candidates = [
-            _candidate(vary, x, s, row)
-            for x, s, row in zip(finalists, finalist_settings, full, strict=True)
+            _candidate(x, point, row)
+            for x, point, row in zip(finalists, finalist_points, full, strict=True)
         ]
         if start_inside:
             candidates.append(start)
@@ -348,8 +432,9 @@ def place(
         if map_quantities is not None:
             report("scoring the map", evaluator)
             score_map = _score_map(
-                evaluator, settings, vary, best, map_quantities, map_points, active, steps
-            )
+                scored, point_at, evaluator.labels, vary, best, map_quantities, map_points,
+                active, steps,
+            )  # fmt: skip
         return PlacementResult(
             robot=robot.name,
             cases=tuple(labels),
@@ -364,20 +449,22 @@ def place(
             placements_scored=placements_scored,
             rounds=rounds,
             score_map=score_map,
+            rig=isinstance(robot, Rig),
+            file_rails=None if base_rails is None else tuple(rig_rails(robot).items()),
         )
 
 
-def _settle_steps(evaluator, at_best, steps: list[int], active, validated: set[int]) -> bool:
+def _settle_steps(scored, at_best: Point, steps: list[int], active, validated: set[int]) -> bool:
     """Check the best placement in full on every binding case and every case not yet
     validated; where a case's thinned score there is more than COARSE_TOLERANCE off, give it
     the coarsest finer step that keeps it (1 at worst). -> whether a binding case's changed."""
     todo = [c for c in range(len(steps)) if steps[c] > 1 and (c in active or c not in validated)]
     if not todo:
         return False
-    full = dict(zip(todo, evaluator.scores([at_best], todo, [1] * len(steps))[0], strict=True))
+    full = dict(zip(todo, scored([at_best], todo, [1] * len(steps))[0], strict=True))
     changed = False
     while todo:
-        thin = evaluator.scores([at_best], todo, steps)[0]
+        thin = scored([at_best], todo, steps)[0]
         off = []
         for c, outcome in zip(todo, thin, strict=True):
             if abs(outcome.binding.score - full[c].binding.score) <= COARSE_TOLERANCE:
@@ -406,7 +493,7 @@ def _finalists(vary, best_x, population, energies) -> list[np.ndarray]:
     return finalists
 
 
-def _score_map(evaluator, settings, vary, best, quantities, points, active, steps) -> ScoreMap:
+def _score_map(scored, point_at, labels, vary, best, quantities, points, active, steps) -> ScoreMap:
     """The score on a points × points grid over two quantities' ranges, the rest at best."""
     i, j = quantities
     xs = np.linspace(vary[i].low, vary[i].high, points)
@@ -416,8 +503,8 @@ def _score_map(evaluator, settings, vary, best, quantities, points, active, step
         for x in xs:
             values = np.array(best.values)
             values[i], values[j] = x, y
-            placements.append(settings_at(settings, vary, values))
-    outcomes = evaluator.scores(placements, active, steps)
+            placements.append(point_at(values))
+    outcomes = scored(placements, active, steps)
     scores = np.array([min(o.binding.score for o in row) for row in outcomes])
     return ScoreMap(
         x=vary[i],
@@ -425,7 +512,7 @@ def _score_map(evaluator, settings, vary, best, quantities, points, active, step
         x_values=xs,
         y_values=ys,
         scores=scores.reshape(ys.size, xs.size),
-        cases=tuple(evaluator.labels[c] for c in active),
+        cases=tuple(labels[c] for c in active),
         steps=tuple(steps[c] for c in active),
     )
 

@@ -9,6 +9,9 @@ positive inside (1 = the limit unused), negative beyond.
   measure stays above twice its floor, so the capped margin is exactly 1);
 - lag: 1 - error / tolerance from the report's rows (no row: at least 10 % of the
   tolerance is left; the placement does not change the lag, so the search leaves it alone);
+- clearance (a rig): each checked pair's margin from the report's `margins`, 1 - min_m / d,
+  continued along its tangent below min_m / 2 so that touching and overlapping pairs keep
+  falling (checking/clearance.py); a row found between samples scores its bound the same way;
 - reach: an unreachable sample scores -1 - (distance out of reach) / (the arm's span), so
   the score keeps falling the further the path leaves the workspace and the search is led
   back into it; -1 continues the elbow's singularity margin, which reaches -1 as the arm
@@ -22,12 +25,15 @@ A placement passes when its score is above 0 and every case's verdict is pass.
 from __future__ import annotations
 
 import math
+from collections.abc import Mapping
 from dataclasses import dataclass
 
 import numpy as np
 
+from reachgate.checking.clearance import margin_of
 from reachgate.checking.intervals import Check, Severity
 from reachgate.checking.pipeline import Report
+from reachgate.checking.rig_check import RigReport
 from reachgate.model.robot import Robot
 
 #: Singularity margins are capped here: no row means the measure is above twice its floor
@@ -74,8 +80,22 @@ def arm_span_m(robot: Robot) -> float:
     return float(links + np.linalg.norm(robot.flange_T_tool[:3, 3]))
 
 
-def report_binding(report: Report, span_m: float, case: str | None = None) -> Binding:
-    """The worst margin of one report (see the module docstring), with its check and axis."""
+def _span_of(axis: str, span_m: float | Mapping[str, float]) -> float:
+    """The span of the robot whose axis this is: a rig's axes are `robot.axis` (plain names
+    for a rig of one robot)."""
+    if not isinstance(span_m, Mapping):
+        return span_m
+    if len(span_m) == 1:
+        return next(iter(span_m.values()))
+    return span_m[axis.partition(".")[0]]
+
+
+def report_binding(
+    report: Report | RigReport, span_m: float | Mapping[str, float], case: str | None = None
+) -> Binding:
+    """The worst margin of one report (see the module docstring), with its check and axis.
+
+    span_m: the arm's span (arm_span_m); for a rig's report, each robot's by its name."""
     case = report.trajectory if case is None else case
     worst = Binding(math.inf, "", "", case)
 
@@ -97,7 +117,9 @@ def report_binding(report: Report, span_m: float, case: str | None = None) -> Bi
         elif row.check is Check.LAG:
             offer(1.0 - row.worst / row.limit, row.check.value, row.axis)
         elif row.check is Check.REACH:
-            offer(REACH_EDGE_SCORE - row.worst / span_m, row.check.value, row.axis)
+            offer(REACH_EDGE_SCORE - row.worst / _span_of(row.axis, span_m), "reach", row.axis)
+        elif row.check is Check.CLEARANCE and row.severity is Severity.VIOLATION:
+            offer(margin_of(row.worst, row.limit), row.check.value, row.axis)
         elif row.severity is Severity.VIOLATION and (
             (row.axis, row.check.value) not in measured_kinds
         ):
