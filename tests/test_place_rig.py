@@ -277,6 +277,16 @@ def test_a_rigs_rail_quantity_names_its_robot(low_pass_window):
         assert cli.exit_code == 2 and message in " ".join(cli.output.split()), cli.output
 
 
+def test_rail_options_on_the_command_line_reach_the_rigs_robots(low_pass_window):
+    """--rail fixed applies to every robot with a rail, so carrier.rail_at is taken (and its
+    range checked against the carrier's rail) instead of refused for a following rail."""
+    args = ["place", str(DEMO_RIG), str(low_pass_window), "--vary", "carrier.rail_at=-5:1"]
+    followed = runner.invoke(app, args)
+    assert followed.exit_code == 2 and "needs a fixed rail" in followed.output
+    fixed = runner.invoke(app, [*args, "--rail", "fixed"])
+    assert fixed.exit_code == 2 and "outside the rail range" in fixed.output, fixed.output
+
+
 def test_a_rigs_rail_bandwidth_varies_for_its_robot_alone(low_pass_window):
     """carrier.bandwidth sets the carrier's follow bandwidth, which its own check then uses;
     the ready options give it with --rail follow (they apply to every robot with a rail)."""
