@@ -3,7 +3,8 @@
 Not a test (pytest collects test_*.py only). Run:
 
     python tests/benchmarks/bench_place.py [--workers 2] [--single-grid 17] [--batch-grid 33]
-                                           [--cases 50] [--seed 0]
+                                           [--cases 50] [--seed 0] [--rig-grid 9]
+                                           [--skip-single] [--skip-batch] [--skip-rig]
 
 1. The demo's wide case (trajectories/approach_wide.csv, rail follow) searched over x, y and
    yaw (x=-1:1, y=-2:2, yaw=-45:45) by `reachgate.place`, beside a grid of the same ranges
@@ -15,6 +16,10 @@ Not a test (pytest collects test_*.py only). Run:
    point stops at the first case that scores below the grid's best so far (it cannot be the
    best any more; cases are tried in the order they last bound), so the brute-force count
    (points × cases) is printed beside the checks actually run for it.
+3. The demo rig's low pass (rigs/demo_landing_rig.toml, trajectories/rig/landing_low_pass.csv,
+   the rig file's rails) searched over x and z (x=-0.5:0.5, z=-0.1:0.3), every placement
+   scored by the rig check (every robot and every clearance pair), beside a --rig-grid ×
+   --rig-grid grid of full rig checks.
 
 "The same answer": the search's best score (checked in full) is at least the grid's best
 less the largest change of the score between the grid's best point and its neighbours (one
@@ -39,6 +44,9 @@ import numpy as np
 
 REPO = Path(__file__).resolve().parents[2]
 ROBOT = REPO / "robots" / "demo_rail_arm.toml"
+RIG = REPO / "rigs" / "demo_landing_rig.toml"
+LOW_PASS = REPO / "trajectories" / "rig" / "landing_low_pass.csv"
+RIG_VARY = "x=-0.5:0.5,z=-0.1:0.3"
 WIDE = REPO / "trajectories" / "approach_wide.csv"
 NOMINAL = REPO / "trajectories" / "approach_calm.csv"
 SINGLE_VARY = "x=-1:1,y=-2:2,yaw=-45:45"
@@ -55,22 +63,34 @@ def _settings():
     return reachgate.CheckSettings(rail=reachgate.RailPolicy.FOLLOW)
 
 
-def _hold(case_paths: list[str]) -> None:
-    """Worker initialiser: the robot and the cases, loaded once per process."""
+def _hold(case_paths: list[str], model_path: str = str(ROBOT)) -> None:
+    """Worker initialiser: the robot (or rig) and the cases, loaded once per process."""
     import reachgate
+    from reachgate.checking.rig_check import rig_pairs
     from reachgate.search.score import arm_span_m
 
-    _HELD["robot"] = reachgate.load_robot(ROBOT)
-    _HELD["cases"] = [reachgate.load_trajectory(p) for p in case_paths]
-    _HELD["span"] = arm_span_m(_HELD["robot"])
+    model = reachgate.load_rig(model_path)
+    if model.alone:
+        _HELD["robot"] = model.robots[0].robot
+        _HELD["cases"] = [reachgate.load_trajectory(p) for p in case_paths]
+        _HELD["span"] = arm_span_m(_HELD["robot"])
+    else:
+        _HELD["robot"], _HELD["pairs"] = model, rig_pairs(model)
+        _HELD["cases"] = [reachgate.load_scenario(p) for p in case_paths]
+        _HELD["span"] = {p.name: arm_span_m(p.robot) for p in model.robots}
 
 
 def _score(settings, case: int) -> float:
     """A case's score at a placement, checked in full as the search's final checks are."""
     from reachgate.checking.pipeline import check
+    from reachgate.checking.rig_check import check_rig
     from reachgate.search.score import report_binding
 
-    report = check(_HELD["robot"], _HELD["cases"][case], settings, verify_slowdown=False)
+    model, path = _HELD["robot"], _HELD["cases"][case]
+    if "pairs" in _HELD:
+        report = check_rig(model, path, settings, verify_slowdown=False, plan=_HELD["pairs"])
+    else:
+        report = check(model, path, settings, verify_slowdown=False)
     return report_binding(report, _HELD["span"]).score
 
 
@@ -146,10 +166,10 @@ def _one_step(pool, vary_text, axes, scores, complete, best_index, n_cases):
     return max(changes), extra
 
 
-def _search(case_paths, vary_text, workers, seed):
+def _search(case_paths, vary_text, workers, seed, model_path=str(ROBOT)):
     import reachgate
 
-    robot = reachgate.load_robot(ROBOT)
+    robot = reachgate.load_rig(model_path)  # a robot file: a rig of one, searched as the robot
     started = time.perf_counter()
     result = reachgate.place(robot, case_paths, vary_text, _settings(), seed=seed, workers=workers)
     return result, time.perf_counter() - started
@@ -164,9 +184,12 @@ def _gust_cases(folder: Path, count: int) -> list[str]:
     return sorted(str(p) for p in folder.glob("*.csv"))
 
 
-def _compare(title, case_paths, vary_text, grid_points, workers, seed, prune) -> None:
-    result, search_s = _search(case_paths, vary_text, workers, seed)
-    with ProcessPoolExecutor(workers, initializer=_hold, initargs=(case_paths,)) as pool:
+def _compare(
+    title, case_paths, vary_text, grid_points, workers, seed, prune, model_path=str(ROBOT)
+) -> None:
+    result, search_s = _search(case_paths, vary_text, workers, seed, model_path)
+    hold = (case_paths, model_path)
+    with ProcessPoolExecutor(workers, initializer=_hold, initargs=hold) as pool:
         scores, complete, best_index, grid_checks, grid_s, axes = _grid(
             pool, workers, vary_text, grid_points, prune
         )
@@ -208,6 +231,8 @@ def main() -> None:
     parser.add_argument("--seed", type=int, default=0)
     parser.add_argument("--skip-single", action="store_true")
     parser.add_argument("--skip-batch", action="store_true")
+    parser.add_argument("--rig-grid", type=int, default=9)
+    parser.add_argument("--skip-rig", action="store_true")
     args = parser.parse_args()
     os.environ.setdefault("OMP_NUM_THREADS", "1")
     os.environ.setdefault("OPENBLAS_NUM_THREADS", "1")
@@ -223,6 +248,11 @@ def main() -> None:
                 f"{len(cases)} gust cases ({GUST_INTENSITY}, perturb seed {GUST_SEED})",
                 cases, BATCH_VARY, args.batch_grid, args.workers, args.seed, prune=True,
             )  # fmt: skip
+    if not args.skip_rig:
+        _compare(
+            "demo rig, low pass", [str(LOW_PASS)], RIG_VARY, args.rig_grid, args.workers,
+            args.seed, prune=False, model_path=str(RIG),
+        )  # fmt: skip
 
 
 if __name__ == "__main__":
