@@ -29,7 +29,7 @@ from reachgate.model.trajectory import Scenario, load_scenario, write_scenario
 from reachgate.render.place_report import _option_text
 from reachgate.search.placement import Candidate, place
 from reachgate.search.score import arm_span_m, report_binding
-from reachgate.search.vary import parse_vary, rails_at
+from reachgate.search.vary import check_variations, parse_vary, rails_at
 
 from conftest import DEMO_CASES, REPO
 
@@ -265,6 +265,8 @@ def test_the_search_lifts_the_low_pass_clear_of_the_floor_and_check_agrees(low_p
 
 def test_a_rigs_rail_quantity_names_its_robot(low_pass_window):
     rig = reachgate.load_rig(DEMO_RIG)
+    with pytest.raises(reachgate.ReachgateError, match="needs a fixed rail"):
+        check_variations(rig, FREE, parse_vary("carrier.rail_at=0:1"))  # the rig file's rails
     for text, message in [
         ("rail_at=0:1", "names its robot (carrier.rail_at)"),
         ("table.bandwidth=0.1:1", "robot 'demo pedestal arm' has no rail"),
@@ -313,7 +315,7 @@ def test_a_dask_cluster_finds_the_same_placement_as_this_process(ball_rig):
     local = place(ball_rig, [_dip()], "z=-0.3:0.3", start, seed=34)
     with distributed.LocalCluster(
         n_workers=1, processes=True, threads_per_worker=1, host="127.0.0.1",
-        dashboard_address=None,
+        dashboard_address=":0",
     ) as cluster:  # fmt: skip
         assert cluster.scheduler_address.startswith("tcp://127.0.0.1:")
         remote = place(

@@ -21,7 +21,7 @@ import numpy as np
 
 from reachgate.checking.pipeline import CheckSettings, Placement
 from reachgate.checking.rail import RailPolicy
-from reachgate.checking.rig_check import RailChoice
+from reachgate.checking.rig_check import RailChoice, rig_rails
 from reachgate.errors import ReachgateError
 from reachgate.model.rig import Rig
 from reachgate.model.robot import Robot
@@ -111,10 +111,12 @@ def check_variations(
     """Refuse variations the robot (or rig) or the rail policy cannot take (ReachgateError).
 
     A robot's rail policy is the settings'; a rig's robots' are `rails` (robot name -> the
-    policy it is checked with, every robot with a rail; see rig_rails).
+    policy it is checked with, every robot with a rail; default: the rig file's, rig_rails).
     """
     if not vary:
         raise ReachgateError("--vary: name at least one quantity to vary")
+    if isinstance(model, Rig) and rails is None:
+        rails = rig_rails(model)
     for v in vary:
         if v.quantity not in RAIL_QUANTITIES:
             continue
