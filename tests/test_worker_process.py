@@ -18,7 +18,11 @@ import textwrap
 
 import pytest
 
+from reachgate.batch.scan import _run_local
 from reachgate.batch.worker_process import pinned_thresholds
+from reachgate.checking.pipeline import CheckSettings
+
+from conftest import DEMO_ROBOT
 
 
 def test_pinned_thresholds_read_from_the_malloc_variables_or_none_when_glibc_adjusts():
@@ -140,3 +144,42 @@ def test_blas_runs_one_thread_inside_a_task_until_the_last_task_of_the_worker_le
         "active after both": 0,
         "in check_cases": [[1], [1]],
     }
+
+
+def _heap_faults_task(case_path, settings, robot_raw, robot_label):
+    """Stands in for check_case: page faults of 40 arrays of 2 MiB made and freed in turn."""
+    import resource
+
+    import numpy as np
+
+    before = resource.getrusage(resource.RUSAGE_SELF).ru_minflt
+    for _ in range(40):
+        block = np.ones(256 * 1024)
+        del block
+    return {
+        "case_path": case_path,
+        "faults": resource.getrusage(resource.RUSAGE_SELF).ru_minflt - before,
+    }
+
+
+@pytest.mark.skipif(sys.platform != "linux", reason="glibc's malloc thresholds: Linux only")
+def test_local_workers_keep_their_heap_when_they_inherit_a_pinned_trim_threshold(
+    tmp_path, monkeypatch
+):
+    """A scan run from a process that started a Dask LocalCluster inherits the nanny's
+    MALLOC_TRIM_THRESHOLD_ (it sets it in the process that starts it); scan's own workers
+    still reuse their heap."""
+    try:
+        os.confstr("CS_GNU_LIBC_VERSION")
+    except (ValueError, OSError):
+        pytest.skip("not glibc")
+    monkeypatch.setenv("MALLOC_TRIM_THRESHOLD_", "65536")
+    paths = [str(tmp_path / f"c{k}.csv") for k in range(2)]
+    results = list(
+        _run_local(
+            paths, CheckSettings(), DEMO_ROBOT.read_bytes(), "demo", 1, task=_heap_faults_task
+        )
+    )
+    pages = 40 * 2 * 1024 * 1024 // 4096
+    assert len(results) == 2
+    assert all(r["faults"] < 0.05 * pages for r in results[1:])  # the first maps the heap once

@@ -36,7 +36,7 @@ from reachgate.batch.store import (
     batch_counts,
     load_summary,
 )
-from reachgate.batch.worker_process import steady_worker
+from reachgate.batch.worker_process import keep_heap, steady_worker
 from reachgate.checking.intervals import Check, Severity
 from reachgate.checking.pipeline import CheckSettings, check
 from reachgate.checking.rail import rail_positions
@@ -255,6 +255,7 @@ def _watch_parent(parent_pid: int) -> None:
 def _local_worker_init(robot_raw: bytes | RigFiles, robot_label: str, parent_pid: int) -> None:
     signal.signal(signal.SIGINT, signal.SIG_IGN)  # Ctrl-C is the scan process's to handle
     threading.Thread(target=_watch_parent, args=(parent_pid,), daemon=True).start()
+    keep_heap()
     _model_for(robot_raw, robot_label)
 
 

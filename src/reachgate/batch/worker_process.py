@@ -22,6 +22,7 @@ steady_worker() sets both for the duration of a task: the malloc thresholds at t
 glibc's own adjustment reaches, and one BLAS thread (threadpoolctl). On leaving, the free
 memory goes back to the system (malloc_trim, what Dask's memory documentation advises) and
 the settings return to what they were, so the worker is left as its owner configured it.
+keep_heap() does the heap part for good in worker processes of our own.
 """
 
 from __future__ import annotations
@@ -84,6 +85,21 @@ def pinned_thresholds(environ: Mapping[str, str] = os.environ) -> tuple[int, int
     return trim, mmap
 
 
+def _raise_thresholds(libc) -> None:
+    libc.mallopt(M_MMAP_THRESHOLD, TASK_MMAP_THRESHOLD)
+    libc.mallopt(M_TRIM_THRESHOLD, TASK_TRIM_THRESHOLD)
+
+
+def keep_heap() -> None:
+    """For a worker process of our own (the local pools of scan and place), for the rest of
+    its life: the heap kept for reuse when its environment pinned the thresholds. A scan
+    started from a process that ran a Dask LocalCluster inherits the nanny's
+    MALLOC_TRIM_THRESHOLD_ (the nanny sets it in the process that starts it)."""
+    libc = _glibc() if pinned_thresholds() else None
+    if libc is not None:
+        _raise_thresholds(libc)
+
+
 def _settle(stack: ExitStack) -> None:
     """Set this process up for checking cases; push onto stack what puts it back."""
     pinned = pinned_thresholds()
@@ -96,8 +112,7 @@ def _settle(stack: ExitStack) -> None:
             libc.mallopt(M_TRIM_THRESHOLD, trim)
             libc.malloc_trim(0)
 
-        libc.mallopt(M_MMAP_THRESHOLD, TASK_MMAP_THRESHOLD)
-        libc.mallopt(M_TRIM_THRESHOLD, TASK_TRIM_THRESHOLD)
+        _raise_thresholds(libc)
         stack.callback(restore_heap)
     from threadpoolctl import threadpool_limits
 

@@ -23,7 +23,7 @@ from reachgate.batch.scan import (
     _single_threaded_children,
     _watch_parent,
 )
-from reachgate.batch.worker_process import steady_worker
+from reachgate.batch.worker_process import keep_heap, steady_worker
 from reachgate.checking.pipeline import CheckSettings, check
 from reachgate.checking.rig_check import RailChoice, check_rig, rig_pairs
 from reachgate.errors import ReachgateError
@@ -119,6 +119,7 @@ def _init_local_worker(robot, cases, labels, parent_pid: int) -> None:
 
     signal.signal(signal.SIGINT, signal.SIG_IGN)  # Ctrl-C is the calling process's to handle
     threading.Thread(target=_watch_parent, args=(parent_pid,), daemon=True).start()
+    keep_heap()
     _WORKER["cases"] = _Cases(robot, cases, labels)
 
 
