@@ -183,3 +183,53 @@ def test_demo_logs_give_back_the_rig_they_were_made_with():
     assert estimate.kind == "pose" and len(estimate.channels) == 6
     assert estimate.delay_s == pytest.approx(demo.DELAY_S, abs=0.002)
     assert estimate.bandwidth_hz == pytest.approx(demo.BANDWIDTH_HZ, rel=0.15)
+
+
+@pytest.mark.parametrize("suffix", [".parquet", ".feather"])
+def test_columnar_logs_give_the_estimate_of_their_csv(tmp_path, suffix):
+    """Axis logs (commanded and measured) and the demo pose logs, each also written as Parquet
+    or Arrow IPC with the same columns: the same estimate, bit for bit; a fault is named by
+    row and column."""
+    from pathlib import Path
+
+    import pyarrow as pa
+    import pyarrow.feather as feather
+    import pyarrow.parquet as pq
+
+    from reachgate.model.trajectory import load_trajectory
+
+    def columnar(csv_path, values: dict):
+        path = csv_path.with_suffix(suffix)
+        table = pa.table(values)
+        pq.write_table(table, path) if suffix == ".parquet" else feather.write_feather(table, path)
+        return path
+
+    t, u, t_meas, y = lagged_logs(0.02, 10.0, seed=1312, duration_s=4.0)
+    commanded, measured = tmp_path / "c.csv", tmp_path / "m.csv"
+    for path, times, values in ((commanded, t, u), (measured, t_meas, y)):
+        np.savetxt(path, np.column_stack([times, values]), delimiter=",", header="t_s,j1_rad",
+                   comments="", fmt="%.17g")  # fmt: skip
+        columnar(path, {"t_s": times, "j1_rad": values[:, 0]})
+    from_csv = estimate_delay_from_files(commanded, measured)
+    from_columnar = estimate_delay_from_files(
+        commanded.with_suffix(suffix), measured.with_suffix(suffix)
+    )
+    assert from_columnar.delay_s == from_csv.delay_s
+    assert from_columnar.bandwidth_hz == from_csv.bandwidth_hz
+
+    folder = Path(__file__).resolve().parents[1] / "trajectories" / "delay"
+    poses = []
+    for name in ("shake_commanded.csv", "shake_measured.csv"):
+        path = load_trajectory(folder / name)
+        p, q = path.scenario_p_m, path.scenario_q_wxyz
+        columns = {"t_s": path.t_s, "x_m": p[:, 0], "y_m": p[:, 1], "z_m": p[:, 2]}
+        columns.update({c: q[:, k] for k, c in enumerate(("qw", "qx", "qy", "qz"))})
+        poses.append(columnar(tmp_path / name, columns))
+    estimate = estimate_delay_from_files(*poses)
+    reference = estimate_delay_from_files(folder / "shake_commanded.csv",
+                                          folder / "shake_measured.csv")  # fmt: skip
+    assert estimate.kind == "pose" and estimate.delay_s == reference.delay_s
+
+    bad = columnar(tmp_path / "bad.csv", {"t_s": [0.0, 1.0, 1.0], "j1_rad": [0.0, 0.1, 0.2]})
+    with pytest.raises(ReachgateError, match=rf"bad{suffix} row 3, column t_s: time 1.0 s repeats"):
+        estimate_delay_from_files(commanded, bad)

@@ -9,6 +9,8 @@ is named by its row (1 = the first data row) and column.
 
 from __future__ import annotations
 
+from collections.abc import Iterator
+from contextlib import contextmanager
 from pathlib import Path
 
 import numpy as np
@@ -29,19 +31,14 @@ def is_columnar(path: str | Path) -> bool:
     return Path(path).suffix.lower() in COLUMNAR_SUFFIXES
 
 
-def read_table(path: Path, label: str):
-    """The whole file as a pyarrow Table. Raises ReachgateError naming the file and fault."""
+@contextmanager
+def _reading(path: Path, label: str) -> Iterator[str]:
+    """Turn a fault of reading the file into one ReachgateError naming it; yields its kind."""
     import pyarrow as pa
 
     kind = COLUMNAR_SUFFIXES[path.suffix.lower()]
     try:
-        if kind == "Parquet":
-            import pyarrow.parquet as pq
-
-            return pq.read_table(path, use_threads=False)  # one thread: a scan runs one per core
-        import pyarrow.feather as feather
-
-        return feather.read_table(path)
+        yield kind
     except FileNotFoundError:
         raise ReachgateError(f"{label}: file not found") from None
     except IsADirectoryError:
@@ -51,6 +48,33 @@ def read_table(path: Path, label: str):
     except (pa.ArrowException, OSError) as error:
         first_line = str(error).splitlines()[0] if str(error) else type(error).__name__
         raise ReachgateError(f"{label}: not a readable {kind} file ({first_line})") from None
+
+
+def read_table(path: Path, label: str):
+    """The whole file as a pyarrow Table. Raises ReachgateError naming the file and fault."""
+    with _reading(path, label) as kind:
+        if kind == "Parquet":
+            import pyarrow.parquet as pq
+
+            return pq.read_table(path, use_threads=False)  # one thread: a scan runs one per core
+        import pyarrow.feather as feather
+
+        return feather.read_table(path)
+
+
+def column_names(path: Path, label: str) -> tuple[str, ...]:
+    """The column names of a columnar file, from its schema (no value is read)."""
+    import pyarrow as pa
+
+    with _reading(path, label) as kind:
+        if kind == "Parquet":
+            import pyarrow.parquet as pq
+
+            schema = pq.read_schema(path)
+        else:
+            with pa.memory_map(str(path)) as source:
+                schema = pa.ipc.open_file(source).schema
+    return tuple(str(name).strip() for name in schema.names)
 
 
 def column_values(table, names: tuple[str, ...], use: tuple[int, ...], label: str) -> np.ndarray:

@@ -33,6 +33,7 @@ from pathlib import Path
 import numpy as np
 
 from reachgate.errors import ReachgateError
+from reachgate.model.columnar import column_names, is_columnar
 from reachgate.model.csv_text import read_header
 from reachgate.model.joint_log import JointLog, load_joint_log
 from reachgate.model.trajectory import Trajectory, load_trajectory
@@ -212,7 +213,10 @@ def model_phase_rad(frequency_hz, delay_s: float, time_constant_s: float) -> np.
 
 def _is_pose_log(path: Path) -> bool:
     """A pose log (DESIGN §4) has position columns x_m or x_mm; else it is an axis log."""
-    _, header = read_header(path, str(path))
+    if is_columnar(path):
+        header = list(column_names(path, str(path)))
+    else:
+        _, header = read_header(path, str(path))
     return "x_m" in header or "x_mm" in header
 
 
