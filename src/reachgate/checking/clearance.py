@@ -319,8 +319,16 @@ def _pair_distances(scene: _Scene, requests, poses, rank) -> list[np.ndarray]:
     calls is paid per kind and not per pair. -> (M,) per request.
     """
     groups: dict[tuple[type, type], list] = {}
+    posed = [int(r[-1]) + 1 for r in rank]  # samples posed per robot
+
+    def index(shape: _Shape, positions: np.ndarray):
+        # positions are sorted and posed: all of them are every posed sample in order
+        if shape.robot is None or positions.size == posed[shape.robot]:
+            return None
+        return rank[shape.robot][positions]
+
     for r, (state, positions) in enumerate(requests):
-        where = [None if s.robot is None else rank[s.robot][positions] for s in (state.a, state.b)]
+        where = [index(state.a, positions), index(state.b, positions)]
         for pa in scene.primitives(state.a, poses):
             for pb in scene.primitives(state.b, poses):
                 a, b, swapped = _in_order(pa, pb)
@@ -407,12 +415,24 @@ def _block_ranges(values: np.ndarray, total: int) -> dict[int, tuple[np.ndarray,
     finest = BLOCK_LEVELS[-1]
     body = padded[:, :total].reshape(columns.shape[0], total // finest, finest)
     following = padded[:, finest : total + 1 : finest]
-    high = np.maximum(body.max(axis=2), following)
-    low = np.minimum(body.min(axis=2), following)
+    high = np.maximum(_fold(np.maximum, body), following)
+    low = np.minimum(_fold(np.minimum, body), following)
     out = {finest: (high.T, low.T)}
     for size in BLOCK_LEVELS[:-1]:
         shape = (columns.shape[0], total // size, size // finest)
-        out[size] = (high.reshape(shape).max(axis=2).T, low.reshape(shape).min(axis=2).T)
+        out[size] = (
+            _fold(np.maximum, high.reshape(shape)).T,
+            _fold(np.minimum, low.reshape(shape)).T,
+        )
+    return out
+
+
+def _fold(operation, values: np.ndarray) -> np.ndarray:
+    """operation (np.maximum or np.minimum) folded over the short last axis of values: one
+    whole-array call per entry of that axis (numpy reduces a short last axis row by row)."""
+    out = values[..., 0]
+    for i in range(1, values.shape[-1]):
+        out = operation(out, values[..., i])
     return out
 
 

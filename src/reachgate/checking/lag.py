@@ -168,29 +168,32 @@ def _causal_coefficients(t_s: np.ndarray, p_m: np.ndarray, q: Quat, degree: int,
     """First and second coefficients, in time from each sample lo..hi-1, of the polynomials
     through the newest degree + 2 samples up to it: (c1, c2) for positions, each (hi - lo, 3),
     and (ξ1, ξ2) for the rotation vectors log(q_kᵀ·q_j) seen from the newest sample k, each a
-    tuple of 3 (hi - lo,) arrays. Before the first sample the command is held at its first
-    pose, one first step apart."""
+    tuple of 3 (hi - lo,) arrays; c2 and ξ2 are None for degree 1, which does not use them.
+    Before the first sample the command is held at its first pose, one first step apart."""
     m = degree + 2
     newest = np.arange(lo, hi)
     first_step = t_s[1] - t_s[0]
-    d, past = [np.zeros(newest.size)], [newest]
+
+    def back(values: np.ndarray, j: int) -> np.ndarray:
+        """values at the sample j before each of lo..hi-1 (the first sample before it)."""
+        return values[lo - j : hi - j] if lo >= j else values[np.maximum(newest - j, 0)]
+
+    d = [np.zeros(newest.size)]
     for j in range(1, m):
         source = newest - j
-        d.append(
-            np.where(source < 0, t_s[0] + source * first_step, t_s[np.maximum(source, 0)])
-            - t_s[lo:hi]
-        )
-        past.append(np.maximum(source, 0))
+        d.append(np.where(source < 0, t_s[0] + source * first_step, back(t_s, j)) - t_s[lo:hi])
     w1, w2 = _causal_weights(d)
-    c1 = sum(w1[j][:, None] * p_m[past[j]] for j in range(m))
-    c2 = sum(w2[j][:, None] * p_m[past[j]] for j in range(m))
+    past_p = [back(p_m, j) for j in range(m)]
+    c1 = sum(w1[j][:, None] * past_p[j] for j in range(m))
+    c2 = sum(w2[j][:, None] * past_p[j] for j in range(m)) if degree > 1 else None
     seen = _conjugate(tuple(c[lo:hi] for c in q))
     xi1, xi2 = [np.zeros(newest.size)] * 3, [np.zeros(newest.size)] * 3
     for j in range(1, m):  # the newest sample's own rotation vector is 0
-        v = _log(_multiply(seen, tuple(c[past[j]] for c in q)))
+        v = _log(_multiply(seen, tuple(back(c, j) for c in q)))
         xi1 = [a + w1[j] * b for a, b in zip(xi1, v, strict=True)]
-        xi2 = [a + w2[j] * b for a, b in zip(xi2, v, strict=True)]
-    return (c1, c2), (xi1, xi2)
+        if degree > 1:
+            xi2 = [a + w2[j] * b for a, b in zip(xi2, v, strict=True)]
+    return (c1, c2), (xi1, xi2 if degree > 1 else None)
 
 
 def predicted_poses(
