@@ -11,15 +11,16 @@ Prints, in one run (one thread, one process):
 4. a per-sample Python loop of coal distance queries over the same pairs on the same poses
    (300 samples spread over the case, poses prepared beforehand), and the ratios.
 With --long-case: writes a 3,600,001-sample two-body CSV (the same motion for an hour at
-1 kHz, about 1 GB) to a temporary folder and runs `python -m reachgate check RIG CSV` on it
-in a child process, printing the child's peak RSS (from os.wait4), CPU and wall time.
+1 kHz, about 1 GB) to a temporary folder (or --case-file PATH, kept and reused) and runs
+`python -m reachgate check RIG CSV` on it in a child process, printing the child's peak RSS
+(from os.wait4), CPU and wall time.
 
 The motion is the demo's calm landing (scripts/make_rig_cases.py) played on a clock that runs
 forward and back, tau(t) = T/2 (1 - cos(2 pi t / 200 s)) with T the landing's 40 s: the drone
 mock-up flies in, sits on the pad and flies back out every 200 s, starting and ending at rest.
 Targets (issue 11): >= 300,000 samples/s on one core, >= 30x the coal loop, < 2 GB peak.
 
-Run: python tests/benchmarks/bench_rig.py [--long-case]
+Run: python tests/benchmarks/bench_rig.py [--long-case [--case-file PATH]]
 """
 
 from __future__ import annotations
@@ -192,14 +193,18 @@ def rate_figures(repeats: int) -> None:
         print(f"  {label:26s} {spent:7.3f} s  {share:5.1%}  ({n / spent:12,.0f} samples/s alone)")
 
 
-def long_case() -> None:
-    """The CLI on a 3,600,001-sample two-body CSV in a child process: its peak RSS."""
+def long_case(case_file: Path | None) -> None:
+    """The CLI on a 3,600,001-sample two-body CSV in a child process: its peak RSS.
+
+    The CSV is written by another child (or read from case_file if it exists), so that this
+    process stays small: a child's peak RSS counts what it had when it was forked."""
     with tempfile.TemporaryDirectory() as folder:
-        path = Path(folder) / "landing_hour.csv"
-        with Clock() as made:
-            write_scenario(path, scenario(LONG_SAMPLES), ("bench_rig.py: an hour at 1 kHz",))
-        size_mb = path.stat().st_size / 1e6
-        print(f"wrote {LONG_SAMPLES:,} samples ({size_mb:,.0f} MB CSV) in {made.wall:.0f} s")
+        path = case_file or Path(folder) / "landing_hour.csv"
+        if not path.exists():
+            with Clock() as made:
+                subprocess.run([sys.executable, __file__, "--write-case", str(path)], check=True)
+            print(f"wrote {LONG_SAMPLES:,} samples in {made.wall:.0f} s")
+        print(f"{path.name}: {path.stat().st_size / 1e6:,.0f} MB")
         command = [
             sys.executable, "-m", "reachgate", "check", str(RIG), str(path),
             "--lag", str(LAG_S), "--predict", PREDICT.value,
@@ -212,7 +217,7 @@ def long_case() -> None:
         child.returncode = os.waitstatus_to_exitcode(status)
     cpu = usage.ru_utime + usage.ru_stime
     peak_mb = usage.ru_maxrss / 1024.0
-    print(f"$ python -m reachgate check rigs/demo_landing_rig.toml landing_hour.csv "
+    print(f"$ python -m reachgate check rigs/demo_landing_rig.toml {path.name} "
           f"--lag {LAG_S} --predict {PREDICT.value} --format json --out report.json")  # fmt: skip
     print(
         f"exit {child.returncode}; peak RSS {peak_mb:,.0f} MB (target < 2048 MB); "
@@ -224,10 +229,17 @@ def long_case() -> None:
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--long-case", action="store_true", help="the 3.6 M-sample CLI run")
+    parser.add_argument(
+        "--case-file", type=Path, help="--long-case: the CSV to use (written there if missing)"
+    )
+    parser.add_argument("--write-case", type=Path, help=argparse.SUPPRESS)
     parser.add_argument("--repeats", type=int, default=3)
     options = parser.parse_args()
-    if options.long_case:
-        long_case()
+    if options.write_case:
+        comments = ("bench_rig.py: the calm landing forward and back for an hour at 1 kHz",)
+        write_scenario(options.write_case, scenario(LONG_SAMPLES), comments)
+    elif options.long_case:
+        long_case(options.case_file)
     else:
         rate_figures(options.repeats)
 
