@@ -304,10 +304,10 @@ def _gathered(primitive: Primitive, index, m: int) -> tuple:
     value per sample: (..., m) arrays."""
     fields = _fields(_take(primitive, index))
     if isinstance(primitive, Segment):
-        fields = (*fields[:2], np.float64(fields[2]))
+        fields = (*fields[:2], np.full(m, fields[2]))
     elif isinstance(primitive, OrientedBox):
-        fields = (*fields[:2], np.asarray(fields[2], dtype=float)[:, None])
-    return tuple(np.broadcast_to(f, (*np.shape(f)[:-1], m)) for f in fields)
+        fields = (*fields[:2], np.repeat(np.asarray(fields[2], dtype=float)[:, None], m, axis=1))
+    return tuple(f if f.shape[-1] == m else np.broadcast_to(f, (*f.shape[:-1], m)) for f in fields)
 
 
 def _pair_distances(scene: _Scene, requests, poses, rank) -> list[np.ndarray]:
