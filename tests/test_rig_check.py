@@ -105,6 +105,22 @@ def test_a_failing_rig_case_prints_its_table_with_advice_for_the_rail_it_follows
     assert "a higher --rail-bandwidth" in advice
 
 
+def test_a_narrow_table_breaks_a_clearance_pair_between_its_shapes_not_inside_a_name(
+    monkeypatch,
+):
+    """At 80 columns the axis cell of a clearance row wraps at the pair's '/' (and at spaces),
+    so every shape's name stays whole on one line."""
+    monkeypatch.setenv("COLUMNS", "80")
+    result = run("check", RIG, CASES / "landing_gusty.csv")
+    assert result.exit_code == 1, result.output
+    lines = result.output.splitlines()
+    assert max(len(line) for line in lines) <= 80
+    table = result.output.split("unit\n", 1)[1].split("\n\n", 1)[0]
+    words = {word for line in table.splitlines() for word in line.split()}
+    assert {"carrier.mock-up", "table.link4", "carrier.link4"} <= words
+    assert not any(word.startswith("able.") or word.endswith(".li") for word in words)
+
+
 def test_rig_json_has_the_design_keys_and_only_finite_numbers(demo_reports):
     _, report = demo_reports["landing_gusty"]
     assert set(report) == {

@@ -18,7 +18,14 @@ from reachgate.checking.pipeline import Report
 from reachgate.checking.rail import RailPolicy
 from reachgate.checking.slowdown import STRETCH_CHECKS
 from reachgate.render.files import atomic_output
-from reachgate.render.terminal import plain_table, table_width, tidy, wrap_items, wrap_text
+from reachgate.render.terminal import (
+    breakable_axis,
+    plain_table,
+    table_width,
+    tidy,
+    wrap_items,
+    wrap_text,
+)
 
 SAFETY_CAUTIONS = (
     "A pass here is not a safety validation of the cell or the path.",
@@ -278,7 +285,7 @@ def print_findings(console, report, max_rows: int, branch_texts: list[str]) -> N
             limit, _ = display(v.limit, v.unit)
             rows.add_row(
                 v.check.value,
-                v.axis,
+                breakable_axis(v.axis),
                 v.severity.value,
                 f"{v.start_s:.3f}",
                 f"{v.end_s:.3f}",

@@ -12,12 +12,19 @@ from reachgate.batch.store import CaseResult, CaseVerdict, ScanSummary
 from reachgate.checking.intervals import Severity
 from reachgate.checking.slowdown import STRETCH_CHECKS
 from reachgate.render.check_report import SAFETY_CAUTIONS, plain_console
-from reachgate.render.terminal import plain_table, table_width, tidy, wrap_items, wrap_text
+from reachgate.render.terminal import (
+    breakable_axis,
+    plain_table,
+    table_width,
+    tidy,
+    wrap_items,
+    wrap_text,
+)
 from reachgate.version import __version__
 
 
 def _row_text(v, time_s: float | None) -> str:
-    return "-" if v is None else f"{v.check.value} {v.axis} {time_s:.2f} s"
+    return "-" if v is None else f"{v.check.value} {breakable_axis(v.axis)} {time_s:.2f} s"
 
 
 def _rail_text(settings: dict) -> str:
@@ -59,7 +66,8 @@ def _stretch_leaves_rows(c: CaseResult) -> bool:
 def _margin_text(c: CaseResult) -> str:
     if c.worst_margin is None:
         return "-"
-    return f"{c.worst_margin:.2f} ({c.worst_margin_axis} {c.worst_margin_check})"
+    axis = breakable_axis(c.worst_margin_axis or "?")
+    return f"{c.worst_margin:.2f} ({axis} {c.worst_margin_check})"
 
 
 RANKED_TITLES = (

@@ -69,6 +69,12 @@ def wrap_items(items: list[str], width: int, separator: str = "; ") -> str:
     return "\n".join(wrap_text(line, width) if len(line) > width else line for line in lines)
 
 
+def breakable_axis(axis: str) -> str:
+    """A table cell for an axis: a clearance pair "a/b" as "a / b", so that a narrow column
+    breaks the pair between its two shapes instead of inside a shape's name."""
+    return axis.replace("/", " / ")
+
+
 def fixed(value: float, digits: int = 2) -> str:
     """value with a fixed number of decimals, never '-0.00' (a negative zero or a value that
     rounds to zero prints as 0.00)."""
