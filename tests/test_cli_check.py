@@ -133,6 +133,12 @@ def test_lag_check_reports_tracking_error():
         (["--lag", "-1"], "--lag"),
         (["--rail-at", "42"], "--rail-at"),
         (["--rail", "follow", "--rail-bandwidth", "0"], "--rail-bandwidth"),
+        # absurd values: refused with the bound (they used to run and fail, exit 1)
+        (["--lag", "1e300"], "--lag: 1e+300 s is above 10 s"),
+        (["--lag", "0.02", "--lag-tol", "1e300"], "--lag-tol: 1e+300 mm is above 1000 mm"),
+        (["--lag", "0.02", "--lag-tol-deg", "400"], "--lag-tol-deg: 400 deg is above 180"),
+        (["--rail", "follow", "--rail-bandwidth", "1e-300"], "outside 0.001 to 1000 Hz"),
+        (["--rail", "follow", "--rail-bandwidth", "1e300"], "outside 0.001 to 1000 Hz"),
     ],
 )
 def test_bad_options_exit_2_with_one_line(args, fragment):

@@ -125,6 +125,10 @@ def test_bodies_come_from_the_scenario_and_a_missing_body_is_named(tmp_path):
 
 
 FAULTS = [
+    (
+        ("bandwidth_hz = 0.4", "bandwidth_hz = 1e300"),
+        "robots[1].rail.bandwidth_hz: 1e+300 Hz is not plausible",
+    ),
     (("table", "carrier"), "robots[2].name: 'carrier' names two robots"),
     (
         ('file = "robots/arm.toml"\nbody = "pad"', 'file = "robots/none.toml"\nbody = "pad"'),

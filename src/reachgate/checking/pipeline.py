@@ -42,7 +42,7 @@ from reachgate.errors import ReachgateError, UndefinedValueError
 from reachgate.kinematics.chain import arm_manipulability
 from reachgate.kinematics.path_ik import PathSolution, solve_trajectory
 from reachgate.kinematics.singularity import conditioning, singularity_kinds
-from reachgate.model.robot import Robot
+from reachgate.model.robot import PLAUSIBLE, Robot
 from reachgate.model.samples import angle_rule, length_rule, out_of_bound
 from reachgate.model.trajectory import Trajectory
 from reachgate.model.transforms import transform_from_xyz_rpy
@@ -114,6 +114,20 @@ class Placement:
         return transform_from_xyz_rpy(self.xyz_m, self.rpy_rad)
 
 
+#: Upper bounds of the check options (common practice, no standard): a motion rig's loop
+#: delay is milliseconds to a few hundred; past LAG_MAX_S the number is a unit mistake (ms
+#: given as s). A tracking tolerance past LAG_TOL_MAX_M or LAG_TOL_MAX_DEG checks nothing in a
+#: cell a few metres across. The rail's follow bandwidth has the robot files' bound for Hz.
+LAG_MAX_S = 10.0
+LAG_TOL_MAX_M = 1.0
+LAG_TOL_MAX_DEG = 180.0
+
+
+def _refuse_above(option: str, value: float, bound: float, unit: str, why: str) -> None:
+    if value > bound:
+        raise ReachgateError(f"{option}: {value:.12g} {unit} is above {bound:g} {unit} ({why})")
+
+
 @dataclass(frozen=True)
 class CheckSettings:
     """How a case is checked: placement, rail policy, loop delay. SI units."""
@@ -137,6 +151,27 @@ class CheckSettings:
             raise ReachgateError(
                 f"--lag-tol-deg: must be a positive angle, got {math.degrees(self.lag_tol_rad)!r}"
             )
+        if self.lag_s is not None:
+            _refuse_above(
+                "--lag", self.lag_s, LAG_MAX_S, "s", "no rig's loop delay; ms given as s?"
+            )
+        _refuse_above(
+            "--lag-tol", 1000.0 * self.lag_tol_m, 1000.0 * LAG_TOL_MAX_M, "mm", "it checks nothing"
+        )
+        _refuse_above(
+            "--lag-tol-deg",
+            math.degrees(self.lag_tol_rad),
+            LAG_TOL_MAX_DEG,
+            "deg",
+            "it checks nothing",
+        )
+        bandwidth, bound = self.rail_bandwidth_hz, PLAUSIBLE["hz"]
+        if math.isfinite(bandwidth) and bandwidth > 0:  # rail.py refuses the others
+            if not bound.lowest <= bandwidth <= bound.highest:
+                raise ReachgateError(
+                    f"--rail-bandwidth: {bandwidth:.12g} Hz is outside {bound.lowest:g} to "
+                    f"{bound.highest:g} Hz ({bound.why})"
+                )
 
     def as_dict(self) -> dict:
         return {

@@ -242,6 +242,9 @@ PLAUSIBLE = {
     "m_s": PlausibleBound(1e-4, 100.0, "rails and linear axes run at about 0.01 to 10 m/s"),
     "m_s2": PlausibleBound(1e-4, 1e3, "rails and linear axes accelerate at about 0.1 to 100 m/s^2"),
     "m_s3": PlausibleBound(1e-4, 1e5, "linear jerk limits lie about 10 to 100 times the accel"),
+    "hz": PlausibleBound(
+        1e-3, 1e3, "a carriage's follow loop runs at a few Hz; 1 mHz would not move in an hour"
+    ),
 }
 
 
@@ -326,6 +329,7 @@ class _Table:
             return
         bound = PLAUSIBLE[unit]
         shown = unit.replace("_s", "/s", 1).replace("/s2", "/s^2").replace("/s3", "/s^3")
+        shown = shown.replace("hz", "Hz")
         if abs(value) > bound.highest:
             raise self.fail(
                 name,
