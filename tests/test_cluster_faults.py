@@ -6,6 +6,8 @@ holds every case finished before."""
 
 from __future__ import annotations
 
+import ctypes
+import signal
 import socket
 import subprocess
 import sys
@@ -35,10 +37,18 @@ def _free_port() -> int:
         return s.getsockname()[1]
 
 
+def _die_with_the_tests() -> None:
+    """In a child before exec: SIGTERM when the test process ends, however it ends (Linux
+    prctl PR_SET_PDEATHSIG), so a killed test run leaves no scheduler or worker behind."""
+    pr_set_pdeathsig = 1
+    ctypes.CDLL(None, use_errno=True).prctl(pr_set_pdeathsig, signal.SIGTERM)
+
+
 def _start(args: list[str]) -> subprocess.Popen:
     return subprocess.Popen(
-        [sys.executable, "-m", *args], stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL
-    )
+        [sys.executable, "-m", *args], stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
+        preexec_fn=_die_with_the_tests,
+    )  # fmt: skip
 
 
 def _stop(*procs: subprocess.Popen) -> None:
@@ -66,6 +76,7 @@ def _scan(address: str, cases: list[Path], store: Path) -> subprocess.Popen:
         [sys.executable, "-m", "reachgate", "scan", str(DEMO_ROBOT), *map(str, cases),
          "--store", str(store), "--cluster", address, "--quiet"],
         stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
+        preexec_fn=_die_with_the_tests,
     )  # fmt: skip
 
 
