@@ -16,6 +16,7 @@ from pathlib import Path
 import numpy as np
 
 from reachgate.errors import ReachgateError
+from reachgate.model.csv_text import file_faults
 
 #: File name endings read as columnar files, and their format.
 COLUMNAR_SUFFIXES = {
@@ -38,13 +39,8 @@ def _reading(path: Path, label: str) -> Iterator[str]:
 
     kind = COLUMNAR_SUFFIXES[path.suffix.lower()]
     try:
-        yield kind
-    except FileNotFoundError:
-        raise ReachgateError(f"{label}: file not found") from None
-    except IsADirectoryError:
-        raise ReachgateError(f"{label}: is a folder, not a trajectory file") from None
-    except PermissionError:
-        raise ReachgateError(f"{label}: cannot read the file (permission denied)") from None
+        with file_faults(label):
+            yield kind
     except (pa.ArrowException, OSError) as error:
         first_line = str(error).splitlines()[0] if str(error) else type(error).__name__
         raise ReachgateError(f"{label}: not a readable {kind} file ({first_line})") from None

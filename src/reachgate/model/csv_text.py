@@ -11,7 +11,8 @@ from __future__ import annotations
 
 import csv
 import math
-from collections.abc import Callable
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
 from pathlib import Path
 from typing import NoReturn
 
@@ -63,9 +64,22 @@ def _header_names(text: str, label: str, line_no: int) -> list[str]:
     return [name.strip() for name in names]
 
 
+@contextmanager
+def file_faults(label: str) -> Iterator[None]:
+    """Turn a missing, folder or unreadable trajectory file into one ReachgateError naming it."""
+    try:
+        yield
+    except FileNotFoundError:
+        raise ReachgateError(f"{label}: file not found") from None
+    except IsADirectoryError:
+        raise ReachgateError(f"{label}: is a folder, not a trajectory file") from None
+    except PermissionError:
+        raise ReachgateError(f"{label}: cannot read the file (permission denied)") from None
+
+
 def read_header(path: Path, label: str) -> tuple[int, list[str]]:
     """(1-based line number of the header, stripped column names). Raises on an empty file."""
-    try:
+    with file_faults(label):
         if path.stat().st_size == 0:
             raise ReachgateError(f"{label}: file is empty")
         _refuse_cr_only_line_ends(path, label)
@@ -76,12 +90,6 @@ def read_header(path: Path, label: str) -> tuple[int, list[str]]:
                     text = text.removeprefix("\ufeff")  # byte-order mark some editors write
                 if not is_skipped(text):
                     return line_no, _header_names(text.rstrip("\r\n"), label, line_no)
-    except FileNotFoundError:
-        raise ReachgateError(f"{label}: file not found") from None
-    except IsADirectoryError:
-        raise ReachgateError(f"{label}: is a folder, not a trajectory file") from None
-    except PermissionError:
-        raise ReachgateError(f"{label}: cannot read the file (permission denied)") from None
     raise ReachgateError(f"{label}: no header line (the file holds only comments or blank lines)")
 
 
