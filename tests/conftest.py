@@ -75,3 +75,23 @@ def without_geometry(text: str) -> str:
             continue
         kept.append(line)
     return "".join(kept)
+
+
+def run_cli(*args):
+    """The reachgate command line, in this process, on args turned to text (typer's runner)."""
+    from typer.testing import CliRunner
+
+    from reachgate.cli import app
+
+    return CliRunner().invoke(app, [str(a) for a in args])
+
+
+def refused(result, *expected: str) -> str:
+    """The one stderr line of an exit-2 refusal, checked to hold every expected phrase."""
+    assert result.exit_code == 2, result.output
+    lines = result.stderr.strip().splitlines()
+    assert len(lines) == 1, result.stderr
+    assert "Traceback" not in result.output
+    for phrase in expected:
+        assert phrase in lines[0], lines[0]
+    return lines[0]

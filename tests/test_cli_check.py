@@ -7,19 +7,12 @@ import subprocess
 import sys
 
 import pytest
-from typer.testing import CliRunner
-
-from reachgate.cli import app
 
 from conftest import DEMO_CASES, DEMO_ROBOT
+from conftest import run_cli as run
 
-runner = CliRunner()
 CALM = str(DEMO_CASES / "approach_calm.csv")
 GUSTY = str(DEMO_CASES / "approach_gusty.csv")
-
-
-def run(*args: str):
-    return runner.invoke(app, list(args))
 
 
 def test_calm_demo_passes_with_the_rail_following():

@@ -6,29 +6,11 @@ import subprocess
 import sys
 
 import pytest
-from typer.testing import CliRunner
 
-from reachgate.cli import app
+from conftest import DEMO_CASES, DEMO_ROBOT, refused
+from conftest import run_cli as run
 
-from conftest import DEMO_CASES, DEMO_ROBOT
-
-runner = CliRunner()
 CALM = DEMO_CASES / "approach_calm.csv"
-
-
-def run(*args):
-    return runner.invoke(app, [str(a) for a in args])
-
-
-def refused(result, *expected: str) -> str:
-    """The one stderr line of an exit-2 refusal, checked to hold every expected phrase."""
-    assert result.exit_code == 2, result.output
-    lines = result.stderr.strip().splitlines()
-    assert len(lines) == 1, result.stderr
-    assert "Traceback" not in result.output
-    for phrase in expected:
-        assert phrase in lines[0], lines[0]
-    return lines[0]
 
 
 def calm_lines() -> list[str]:

@@ -6,30 +6,15 @@ import json
 
 import numpy as np
 import pytest
-from typer.testing import CliRunner
 
 from reachgate.checking.rail import RailPolicy, rail_positions
-from reachgate.cli import app
 from reachgate.errors import ReachgateError
 from reachgate.model.robot import load_robot
 
-from conftest import DEMO_CASES, DEMO_ROBOT
+from conftest import DEMO_CASES, DEMO_ROBOT, refused
+from conftest import run_cli as run
 
-runner = CliRunner()
 CALM = DEMO_CASES / "approach_calm.csv"
-
-
-def run(*args):
-    return runner.invoke(app, [str(a) for a in args])
-
-
-def refused(result, *expected: str) -> str:
-    assert result.exit_code == 2, result.output
-    lines = result.stderr.strip().splitlines()
-    assert len(lines) == 1, result.stderr
-    for phrase in expected:
-        assert phrase in lines[0], lines[0]
-    return lines[0]
 
 
 @pytest.mark.parametrize("at", ["12", "3"])

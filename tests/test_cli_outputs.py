@@ -7,20 +7,13 @@ import shutil
 
 import numpy as np
 import pytest
-from typer.testing import CliRunner
 
-from reachgate.cli import app
 from reachgate.errors import ReachgateError
 from reachgate.model.trajectory import Trajectory, write_trajectory
 from reachgate.render.files import atomic_output, write_text
 
 from conftest import DEMO_CASES, DEMO_ROBOT
-
-runner = CliRunner()
-
-
-def run(*args):
-    return runner.invoke(app, [str(a) for a in args])
+from conftest import run_cli as run
 
 
 @pytest.fixture

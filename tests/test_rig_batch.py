@@ -20,14 +20,12 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-from typer.testing import CliRunner
 
 from reachgate.batch.model_files import RigFiles, fingerprint, read_model_files, scan_settings
 from reachgate.batch.scan import _worst_margin, check_case, load_summary, scan
 from reachgate.batch.store import CaseVerdict
 from reachgate.checking.pipeline import CheckSettings
 from reachgate.checking.rig_check import check_rig
-from reachgate.cli import app
 from reachgate.model.rig import load_rig
 from reachgate.model.trajectory import (
     Scenario,
@@ -41,15 +39,11 @@ from reachgate.motion.disturb import iter_disturbance_cases
 from reachgate.render.cases import write_case_files
 
 from conftest import DEMO_CASES, DEMO_ROBOT, REPO
+from conftest import run_cli as run
 
-runner = CliRunner()
 DEMO_RIG = REPO / "rigs" / "demo_landing_rig.toml"
 #: Every 8th sample of the demo rig cases (12.5 Hz; the same motions, a fraction of the time).
 EVERY = 8
-
-
-def run(*args):
-    return runner.invoke(app, [str(a) for a in args])
 
 
 # -- perturb --body ------------------------------------------------------------------------

@@ -14,26 +14,20 @@ from dataclasses import replace
 
 import numpy as np
 import pytest
-from typer.testing import CliRunner
 
 import reachgate
 from reachgate.checking.intervals import RATE_CHECKS, Check, Severity
 from reachgate.checking.pipeline import CheckSettings, Placement, check, stretched
 from reachgate.checking.rail import RailPolicy
 from reachgate.checking.rig_check import RailChoice, check_rig, robot_settings
-from reachgate.cli import app
 from reachgate.model.rig import load_rig
 from reachgate.model.trajectory import Scenario, load_scenario, load_trajectory
 
 from conftest import DEMO_CASES, DEMO_ROBOT, REPO
+from conftest import run_cli as run
 
-runner = CliRunner()
 RIG = REPO / "rigs" / "demo_landing_rig.toml"
 CASES = DEMO_CASES / "rig"
-
-
-def run(*args: str):
-    return runner.invoke(app, [str(a) for a in args])
 
 
 @pytest.fixture(scope="module")
